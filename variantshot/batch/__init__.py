@@ -1,0 +1,1 @@
+"""Batch stage: shot plan, content-hash keys, manifest, lock, runner and executors."""

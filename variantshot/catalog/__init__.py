@@ -1,0 +1,1 @@
+"""Catalog stage: read and validate the catalog CSV, parse colours and finishes, expand templates."""

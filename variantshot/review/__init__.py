@@ -1,0 +1,1 @@
+"""Review stage: QA metrics and verdicts, approvals bound to image content, contact sheets."""

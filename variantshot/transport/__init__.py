@@ -1,0 +1,1 @@
+"""Light transport: cameras, materials (BSDFs), lights, environment and the path-tracing integrator."""
