@@ -1,0 +1,755 @@
+"""BVH kernels: binned-SAH build, 4-wide collapse, watertight closest-hit and any-hit traversal.
+
+Layout (the arrays of :class:`variantshot.geometry.bvh.BVH`)
+------------------------------------------------------------
+The tree is 4-wide.  Node 0 is the root and is always an inner node, even for 0 or 1 triangles.
+
+``nodes_f`` : (24 * n_nodes,) float32
+    Child boxes of node ``n`` at ``24 n``, structure-of-arrays by plane, one lane per child::
+
+        [min_x c0..c3, max_x c0..c3, min_y c0..c3, max_y c0..c3, min_z c0..c3, max_z c0..c3]
+
+    An empty child slot has min = +inf and max = -inf, so no ray ever enters it.
+``nodes_i`` : (4 * n_nodes,) int32
+    Child references of node ``n`` at ``4 n``.  ``ref >= 0`` is an inner node index.  ``ref < 0``
+    is a leaf: with ``v = ~ref`` (= -ref - 1) its triangles are ``v >> 3 .. (v >> 3) + (v & 7) - 1``
+    in leaf order (1 to 7 triangles; the build makes at most 4).  Empty slots hold -1.
+``tris_f`` : (9 * n_tris,) float32
+    The three vertices of each triangle in leaf order, ``[v0x v0y v0z v1x v1y v1z v2x v2y v2z]``,
+    in the triangle's original vertex order (so barycentrics refer to the original vertices).
+``tri_ids`` : (n_tris,) int32
+    Original triangle index of each leaf-order triangle.
+
+Ray-triangle test
+-----------------
+Woop, Benthin & Wald (2013), "Watertight Ray/Triangle Intersection", JCGT 2(1): the vertices are
+translated to the ray origin, permuted so the dominant direction axis is z, and sheared so the
+ray becomes the +z axis.  The three 2-D edge functions are evaluated in float64: a product of two
+float32 values is exact in float64, so each edge function's *sign* is exact (this replaces the
+paper's "recompute in double when exactly 0" fallback).  A shared edge gives the two triangles
+edge functions of exactly opposite sign, so a ray through it hits one of them or both (at the
+same t), never neither.  The test is compiled without fast-math so that every vertex goes
+through the same IEEE operations in every triangle that uses it.
+
+Ray-box test: slabs with the conservative far-distance factor 1 + 2 gamma(3) of Ize (2013),
+"Robust BVH Ray Traversal", JCGT 2(2), as used by pbrt-v4 ``Bounds3::IntersectP``.
+"""
+
+from __future__ import annotations
+
+from .. import _jit  # noqa: F401  (sets the numba cache folder before numba is imported)
+from .._jit import KERNEL as _KERNEL_PRESET
+from .._jit import PARALLEL as _PARALLEL_PRESET
+from .._jit import njit, prange
+
+import math
+
+import numba
+import numpy as np
+from numba import types
+from numba.core import cgutils
+from numba.extending import intrinsic
+
+# numba accepts fastmath as a bool, dict or *set* (not frozenset), so pass a set copy.
+KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))
+PARALLEL = dict(_PARALLEL_PRESET, fastmath=set(_PARALLEL_PRESET["fastmath"]))
+# The triangle test runs without fast-math (no contraction or reassociation): see module doc.
+_EXACT = dict(KERNEL, fastmath=False)
+
+if numba.config.DISABLE_JIT:
+
+    def _stack_refs():
+        return np.empty(256, np.int32)
+
+    def _stack_dists():
+        return np.empty(256, np.float32)
+
+else:
+
+    @intrinsic
+    def _alloca_i32_256(typingctx):
+        """A 256-entry int32 buffer on the machine stack (no heap allocation per ray)."""
+        sig = types.CPointer(types.int32)()
+
+        def codegen(context, builder, signature, args):
+            return cgutils.alloca_once(builder, context.get_value_type(types.int32), size=256)
+
+        return sig, codegen
+
+    @intrinsic
+    def _alloca_f32_256(typingctx):
+        """A 256-entry float32 buffer on the machine stack."""
+        sig = types.CPointer(types.float32)()
+
+        def codegen(context, builder, signature, args):
+            return cgutils.alloca_once(builder, context.get_value_type(types.float32), size=256)
+
+        return sig, codegen
+
+    @njit(**KERNEL)
+    def _stack_refs():
+        return numba.carray(_alloca_i32_256(), 256)
+
+    @njit(**KERNEL)
+    def _stack_dists():
+        return numba.carray(_alloca_f32_256(), 256)
+
+
+# --------------------------------------------------------------------------------------------
+# Ray set-up and the watertight triangle test
+# --------------------------------------------------------------------------------------------
+
+
+@njit(**KERNEL)
+def _pick(a, b, c, k):
+    if k == 0:
+        return a
+    if k == 1:
+        return b
+    return c
+
+
+@njit(**_EXACT)
+def _shear_setup(dx, dy, dz):
+    """Axis permutation and shear of Woop et al. (2013) for direction d.
+
+    Returns (ok, kx, ky, kz, sx, sy, sz); ok is False for a zero or non-finite direction.
+    """
+    adx = abs(dx)
+    ady = abs(dy)
+    adz = abs(dz)
+    if not (math.isfinite(dx) and math.isfinite(dy) and math.isfinite(dz)):
+        return False, 0, 1, 2, np.float32(0.0), np.float32(0.0), np.float32(0.0)
+    if adx > ady and adx > adz:
+        kz = 0
+    elif ady > adz:
+        kz = 1
+    else:
+        kz = 2
+    dkz = _pick(dx, dy, dz, kz)
+    if dkz == 0.0:
+        return False, 0, 1, 2, np.float32(0.0), np.float32(0.0), np.float32(0.0)
+    kx = kz + 1
+    if kx == 3:
+        kx = 0
+    ky = kx + 1
+    if ky == 3:
+        ky = 0
+    if dkz < 0.0:  # keep the winding, so the barycentric signs stay meaningful
+        kx, ky = ky, kx
+    sz = np.float32(1.0) / dkz
+    sx = _pick(dx, dy, dz, kx) * sz
+    sy = _pick(dx, dy, dz, ky) * sz
+    return True, kx, ky, kz, np.float32(sx), np.float32(sy), np.float32(sz)
+
+
+@njit(**_EXACT)
+def _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz):
+    """Watertight test of leaf-order triangle i; returns (hit, t, b1, b2) in float64.
+
+    ``hit`` is False when the ray misses the triangle's plane region or the triangle is
+    degenerate (determinant 0); t is unbounded (the caller applies tmin / tmax).
+    """
+    base = 9 * i
+    # vertices relative to the ray origin, in permuted axis order
+    ax = tris_f[base + kx] - okx
+    ay = tris_f[base + ky] - oky
+    az = tris_f[base + kz] - okz
+    bx = tris_f[base + 3 + kx] - okx
+    by = tris_f[base + 3 + ky] - oky
+    bz = tris_f[base + 3 + kz] - okz
+    cx = tris_f[base + 6 + kx] - okx
+    cy = tris_f[base + 6 + ky] - oky
+    cz = tris_f[base + 6 + kz] - okz
+    # shear so the ray is the +z axis
+    ax = ax - sx * az
+    ay = ay - sy * az
+    bx = bx - sx * bz
+    by = by - sy * bz
+    cx = cx - sx * cz
+    cy = cy - sy * cz
+    # edge functions in float64: exact products, one rounding, exact sign
+    u = np.float64(cx) * np.float64(by) - np.float64(cy) * np.float64(bx)
+    v = np.float64(ax) * np.float64(cy) - np.float64(ay) * np.float64(cx)
+    w = np.float64(bx) * np.float64(ay) - np.float64(by) * np.float64(ax)
+    if (u < 0.0 or v < 0.0 or w < 0.0) and (u > 0.0 or v > 0.0 or w > 0.0):
+        return False, 0.0, 0.0, 0.0
+    det = u + v + w
+    if det == 0.0:
+        return False, 0.0, 0.0, 0.0
+    inv_det = 1.0 / det
+    t_scaled = (
+        u * np.float64(sz * az) + v * np.float64(sz * bz) + w * np.float64(sz * cz)
+    )
+    return True, t_scaled * inv_det, v * inv_det, w * inv_det
+
+
+@njit(**KERNEL)
+def _inv_dir(d):
+    """1/d for the slab test, with |d| clamped away from 0 so no 0 * inf NaN can arise."""
+    if abs(d) < 1e-30:
+        d = np.float32(1e-30) if d >= 0.0 else np.float32(-1e-30)
+    return np.float32(1.0) / d
+
+
+# --------------------------------------------------------------------------------------------
+# Traversal
+# --------------------------------------------------------------------------------------------
+
+
+@njit(**KERNEL)
+def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
+    """Closest intersection of one ray with the BVH (both faces count).
+
+    Parameters
+    ----------
+    nodes_f, nodes_i, tris_f, tri_ids : ndarray
+        The BVH arrays (layout in the module docstring).
+    ox, oy, oz, dx, dy, dz : float
+        Ray origin and direction (world units; the direction need not be unit length).
+    tmin, tmax : float
+        Open interval of accepted ray parameters, in units of the direction's length.
+
+    Returns
+    -------
+    t : float32
+        Ray parameter of the hit, inf on a miss.
+    tri : int32
+        Original triangle index, -1 on a miss.
+    b1, b2 : float32
+        Barycentric weights of the triangle's vertices 1 and 2 (0 on a miss).
+
+    Notes
+    -----
+    No heap allocation: the traversal stack lives on the machine stack.  Safe to call from
+    any thread.  Children are visited nearest first and the far limit shrinks with each hit.
+    """
+    ox = np.float32(ox)
+    oy = np.float32(oy)
+    oz = np.float32(oz)
+    dx = np.float32(dx)
+    dy = np.float32(dy)
+    dz = np.float32(dz)
+    t_best = np.float32(np.inf)
+    tri_best = np.int32(-1)
+    b1_best = np.float32(0.0)
+    b2_best = np.float32(0.0)
+    ok, kx, ky, kz, sx, sy, sz = _shear_setup(dx, dy, dz)
+    if not ok or not (tmax > tmin):
+        return t_best, tri_best, b1_best, b2_best
+    okx = _pick(ox, oy, oz, kx)
+    oky = _pick(ox, oy, oz, ky)
+    okz = _pick(ox, oy, oz, kz)
+    ivx = _inv_dir(dx)
+    ivy = _inv_dir(dy)
+    ivz = _inv_dir(dz)
+    nx = 0 if ivx >= 0.0 else 4
+    ny = 8 if ivy >= 0.0 else 12
+    nz = 16 if ivz >= 0.0 else 20
+    fx = 4 - nx
+    fy = 20 - ny
+    fz = 36 - nz
+    t_lo = np.float32(tmin)
+    t_hi = np.float32(tmax)  # shrinks to the closest hit so far
+    robust = np.float32(1.0000004)  # 1 + 2 gamma(3), float32
+
+    stack_ref = _stack_refs()
+    stack_t = _stack_dists()
+    stack_ref[0] = 0
+    stack_t[0] = t_lo
+    sp = 1
+    while sp > 0:
+        sp -= 1
+        ref = stack_ref[sp]
+        if stack_t[sp] > t_hi:
+            continue
+        if ref >= 0:
+            base = 24 * ref
+            first = sp
+            for c in range(4):
+                t0 = (nodes_f[base + nx + c] - ox) * ivx
+                t1 = (nodes_f[base + fx + c] - ox) * ivx
+                t2 = (nodes_f[base + ny + c] - oy) * ivy
+                t3 = (nodes_f[base + fy + c] - oy) * ivy
+                t4 = (nodes_f[base + nz + c] - oz) * ivz
+                t5 = (nodes_f[base + fz + c] - oz) * ivz
+                tn = max(max(t0, t2), max(t4, t_lo))
+                tf = min(min(min(t1, t3), t5) * robust, t_hi)
+                if tn <= tf:
+                    # insertion keeping the new entries sorted far-to-near (nearest on top)
+                    j = sp
+                    while j > first and stack_t[j - 1] < tn:
+                        stack_ref[j] = stack_ref[j - 1]
+                        stack_t[j] = stack_t[j - 1]
+                        j -= 1
+                    stack_ref[j] = nodes_i[4 * ref + c]
+                    stack_t[j] = tn
+                    sp += 1
+        else:
+            v = ~ref
+            start = v >> 3
+            stop = start + (v & 7)
+            for i in range(start, stop):
+                hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
+                if hit and t > t_lo and t < t_hi:
+                    t_hi = np.float32(t)
+                    t_best = np.float32(t)
+                    tri_best = tri_ids[i]
+                    b1_best = np.float32(b1)
+                    b2_best = np.float32(b2)
+    return t_best, tri_best, b1_best, b2_best
+
+
+@njit(**KERNEL)
+def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
+    """True when the ray hits any triangle with tmin < t < tmax (shadow query, early exit).
+
+    Parameters are those of :func:`closest_hit`.  No heap allocation; thread safe.
+    """
+    ox = np.float32(ox)
+    oy = np.float32(oy)
+    oz = np.float32(oz)
+    dx = np.float32(dx)
+    dy = np.float32(dy)
+    dz = np.float32(dz)
+    ok, kx, ky, kz, sx, sy, sz = _shear_setup(dx, dy, dz)
+    if not ok or not (tmax > tmin):
+        return False
+    okx = _pick(ox, oy, oz, kx)
+    oky = _pick(ox, oy, oz, ky)
+    okz = _pick(ox, oy, oz, kz)
+    ivx = _inv_dir(dx)
+    ivy = _inv_dir(dy)
+    ivz = _inv_dir(dz)
+    nx = 0 if ivx >= 0.0 else 4
+    ny = 8 if ivy >= 0.0 else 12
+    nz = 16 if ivz >= 0.0 else 20
+    fx = 4 - nx
+    fy = 20 - ny
+    fz = 36 - nz
+    t_lo = np.float32(tmin)
+    t_hi = np.float32(tmax)
+    robust = np.float32(1.0000004)
+
+    stack_ref = _stack_refs()
+    stack_ref[0] = 0
+    sp = 1
+    while sp > 0:
+        sp -= 1
+        ref = stack_ref[sp]
+        if ref >= 0:
+            base = 24 * ref
+            for c in range(4):
+                t0 = (nodes_f[base + nx + c] - ox) * ivx
+                t1 = (nodes_f[base + fx + c] - ox) * ivx
+                t2 = (nodes_f[base + ny + c] - oy) * ivy
+                t3 = (nodes_f[base + fy + c] - oy) * ivy
+                t4 = (nodes_f[base + nz + c] - oz) * ivz
+                t5 = (nodes_f[base + fz + c] - oz) * ivz
+                tn = max(max(t0, t2), max(t4, t_lo))
+                tf = min(min(min(t1, t3), t5) * robust, t_hi)
+                if tn <= tf:
+                    stack_ref[sp] = nodes_i[4 * ref + c]
+                    sp += 1
+        else:
+            v = ~ref
+            start = v >> 3
+            stop = start + (v & 7)
+            for i in range(start, stop):
+                hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
+                if hit and t > t_lo and t < t_hi:
+                    return True
+    return False
+
+
+@njit(**PARALLEL)
+def intersect_closest(nodes_f, nodes_i, tris_f, tri_ids, origins, directions, tmin, tmax,
+                      out_t, out_tri, out_b1, out_b2):
+    """Batch closest-hit over rays, parallel over blocks of 64 rays.
+
+    Parameters
+    ----------
+    origins, directions : (N, 3) float32 ndarray
+    tmin, tmax : (N,) float32 ndarray
+    out_t : (N,) float32 ndarray, written (inf on a miss)
+    out_tri : (N,) int32 ndarray, written (original triangle index, -1 on a miss)
+    out_b1, out_b2 : (N,) float32 ndarray, written (barycentrics of vertices 1 and 2)
+
+    Thread contract: block k writes only rays 64 k .. 64 k + 63 of the outputs.
+    """
+    n = origins.shape[0]
+    n_blocks = (n + 63) // 64
+    for blk in prange(n_blocks):
+        stop = min(n, 64 * blk + 64)
+        for r in range(64 * blk, stop):
+            t, tri, b1, b2 = closest_hit(
+                nodes_f, nodes_i, tris_f, tri_ids,
+                origins[r, 0], origins[r, 1], origins[r, 2],
+                directions[r, 0], directions[r, 1], directions[r, 2],
+                tmin[r], tmax[r],
+            )
+            out_t[r] = t
+            out_tri[r] = tri
+            out_b1[r] = b1
+            out_b2[r] = b2
+
+
+@njit(**PARALLEL)
+def intersect_any(nodes_f, nodes_i, tris_f, tri_ids, origins, directions, tmin, tmax, out_hit):
+    """Batch any-hit over rays, parallel over blocks of 64 rays.
+
+    Parameters as :func:`intersect_closest`; ``out_hit`` : (N,) bool ndarray, written.
+    Thread contract: block k writes only rays 64 k .. 64 k + 63 of ``out_hit``.
+    """
+    n = origins.shape[0]
+    n_blocks = (n + 63) // 64
+    for blk in prange(n_blocks):
+        stop = min(n, 64 * blk + 64)
+        for r in range(64 * blk, stop):
+            out_hit[r] = any_hit(
+                nodes_f, nodes_i, tris_f, tri_ids,
+                origins[r, 0], origins[r, 1], origins[r, 2],
+                directions[r, 0], directions[r, 1], directions[r, 2],
+                tmin[r], tmax[r],
+            )
+
+
+# --------------------------------------------------------------------------------------------
+# Build: binned SAH binary tree, then collapse to 4-wide nodes
+# --------------------------------------------------------------------------------------------
+
+
+@njit(**KERNEL)
+def _half_area(x0, y0, z0, x1, y1, z1):
+    ex = x1 - x0
+    ey = y1 - y0
+    ez = z1 - z0
+    if ex < 0.0 or ey < 0.0 or ez < 0.0:
+        return 0.0
+    return ex * ey + ey * ez + ez * ex
+
+
+@njit(**KERNEL)
+def build_binary(tri_lo, tri_hi, centroid, max_leaf, n_bins, trav_cost):
+    """Binned SAH binary BVH over triangle boxes (iterative, depth-first).
+
+    Parameters
+    ----------
+    tri_lo, tri_hi : (T, 3) float32 ndarray
+        Per-triangle box corners.
+    centroid : (T, 3) float32 ndarray
+        Per-triangle box centres (the split key).
+    max_leaf : int
+        Largest leaf (1..7).
+    n_bins : int
+        SAH bins per axis (2..64).
+    trav_cost : float
+        Cost of one node visit relative to one triangle test.
+
+    Returns
+    -------
+    order : (T,) int32 ndarray
+        Triangle indices in leaf order.
+    lo, hi : (M, 3) float32 ndarray
+        Node boxes (M = number of nodes used).
+    left : (M,) int32 ndarray
+        Left child (right child is left + 1) or -1 for a leaf.
+    start, count : (M,) int32 ndarray
+        For a leaf, its range in ``order``.
+
+    Notes
+    -----
+    O(T log T): each level does three linear passes.  All-equal centroids and very deep
+    branches (depth > 48) fall back to median splits, so the depth stays below 48 + 32 and no
+    input loops forever.
+    """
+    n_tris = tri_lo.shape[0]
+    cap = max(1, 2 * n_tris - 1)
+    lo = np.empty((cap, 3), np.float32)
+    hi = np.empty((cap, 3), np.float32)
+    left = np.full(cap, -1, np.int32)
+    start = np.zeros(cap, np.int32)
+    count = np.zeros(cap, np.int32)
+    order = np.arange(n_tris).astype(np.int32)
+    if n_tris == 0:
+        return order, lo[:0], hi[:0], left[:0], start[:0], count[:0]
+
+    bin_lo = np.empty((3, n_bins, 3), np.float32)
+    bin_hi = np.empty((3, n_bins, 3), np.float32)
+    bin_n = np.empty((3, n_bins), np.int64)
+    right_area = np.empty(n_bins, np.float64)
+    right_n = np.empty(n_bins, np.int64)
+    keys = np.empty(n_tris, np.float32)
+
+    st_node = np.empty(256, np.int64)
+    st_start = np.empty(256, np.int64)
+    st_end = np.empty(256, np.int64)
+    st_depth = np.empty(256, np.int64)
+    st_node[0] = 0
+    st_start[0] = 0
+    st_end[0] = n_tris
+    st_depth[0] = 0
+    sp = 1
+    n_nodes = 1
+    inf = np.float32(np.inf)
+    while sp > 0:
+        sp -= 1
+        node = st_node[sp]
+        s = st_start[sp]
+        e = st_end[sp]
+        depth = st_depth[sp]
+        n = e - s
+        # node box and centroid box
+        bx0 = inf
+        by0 = inf
+        bz0 = inf
+        bx1 = -inf
+        by1 = -inf
+        bz1 = -inf
+        cx0 = inf
+        cy0 = inf
+        cz0 = inf
+        cx1 = -inf
+        cy1 = -inf
+        cz1 = -inf
+        for k in range(s, e):
+            p = order[k]
+            bx0 = min(bx0, tri_lo[p, 0])
+            by0 = min(by0, tri_lo[p, 1])
+            bz0 = min(bz0, tri_lo[p, 2])
+            bx1 = max(bx1, tri_hi[p, 0])
+            by1 = max(by1, tri_hi[p, 1])
+            bz1 = max(bz1, tri_hi[p, 2])
+            cx0 = min(cx0, centroid[p, 0])
+            cy0 = min(cy0, centroid[p, 1])
+            cz0 = min(cz0, centroid[p, 2])
+            cx1 = max(cx1, centroid[p, 0])
+            cy1 = max(cy1, centroid[p, 1])
+            cz1 = max(cz1, centroid[p, 2])
+        lo[node, 0] = bx0
+        lo[node, 1] = by0
+        lo[node, 2] = bz0
+        hi[node, 0] = bx1
+        hi[node, 1] = by1
+        hi[node, 2] = bz1
+        if n <= 1:
+            left[node] = -1
+            start[node] = s
+            count[node] = n
+            continue
+
+        # ---- SAH over binned centroids, all three axes in one pass
+        best_axis = -1
+        best_split = 0
+        best_cost = np.inf
+        c_lo = (cx0, cy0, cz0)
+        c_hi = (cx1, cy1, cz1)
+        scale = np.empty(3, np.float32)
+        for a in range(3):
+            ext = c_hi[a] - c_lo[a]
+            scale[a] = (n_bins * (1.0 - 1e-6)) / ext if ext > 0.0 else 0.0
+        if depth < 48:
+            for a in range(3):
+                for b in range(n_bins):
+                    bin_n[a, b] = 0
+                    for q in range(3):
+                        bin_lo[a, b, q] = inf
+                        bin_hi[a, b, q] = -inf
+            for k in range(s, e):
+                p = order[k]
+                for a in range(3):
+                    if scale[a] == 0.0:
+                        continue
+                    b = int((centroid[p, a] - c_lo[a]) * scale[a])
+                    b = min(max(b, 0), n_bins - 1)
+                    bin_n[a, b] += 1
+                    for q in range(3):
+                        bin_lo[a, b, q] = min(bin_lo[a, b, q], tri_lo[p, q])
+                        bin_hi[a, b, q] = max(bin_hi[a, b, q], tri_hi[p, q])
+            for a in range(3):
+                if scale[a] == 0.0:
+                    continue
+                # sweep from the right: area and count of bins b..end
+                rx0 = inf
+                ry0 = inf
+                rz0 = inf
+                rx1 = -inf
+                ry1 = -inf
+                rz1 = -inf
+                rn = 0
+                for b in range(n_bins - 1, 0, -1):
+                    rx0 = min(rx0, bin_lo[a, b, 0])
+                    ry0 = min(ry0, bin_lo[a, b, 1])
+                    rz0 = min(rz0, bin_lo[a, b, 2])
+                    rx1 = max(rx1, bin_hi[a, b, 0])
+                    ry1 = max(ry1, bin_hi[a, b, 1])
+                    rz1 = max(rz1, bin_hi[a, b, 2])
+                    rn += bin_n[a, b]
+                    right_n[b] = rn
+                    right_area[b] = _half_area(rx0, ry0, rz0, rx1, ry1, rz1)
+                lx0 = inf
+                ly0 = inf
+                lz0 = inf
+                lx1 = -inf
+                ly1 = -inf
+                lz1 = -inf
+                ln = 0
+                for b in range(1, n_bins):
+                    lx0 = min(lx0, bin_lo[a, b - 1, 0])
+                    ly0 = min(ly0, bin_lo[a, b - 1, 1])
+                    lz0 = min(lz0, bin_lo[a, b - 1, 2])
+                    lx1 = max(lx1, bin_hi[a, b - 1, 0])
+                    ly1 = max(ly1, bin_hi[a, b - 1, 1])
+                    lz1 = max(lz1, bin_hi[a, b - 1, 2])
+                    ln += bin_n[a, b - 1]
+                    if ln == 0 or right_n[b] == 0:
+                        continue
+                    cost = _half_area(lx0, ly0, lz0, lx1, ly1, lz1) * ln + right_area[b] * right_n[b]
+                    if cost < best_cost:
+                        best_cost = cost
+                        best_axis = a
+                        best_split = b
+        node_area = _half_area(bx0, by0, bz0, bx1, by1, bz1)
+        if best_axis >= 0:
+            split_cost = trav_cost + (best_cost / node_area if node_area > 0.0 else n)
+        else:
+            split_cost = np.inf
+        if n <= max_leaf and n <= split_cost:
+            left[node] = -1
+            start[node] = s
+            count[node] = n
+            continue
+
+        if best_axis >= 0:
+            # partition order[s:e] by bin < best_split
+            a = best_axis
+            i = s
+            j = e - 1
+            while i <= j:
+                b = int((centroid[order[i], a] - c_lo[a]) * scale[a])
+                b = min(max(b, 0), n_bins - 1)
+                if b < best_split:
+                    i += 1
+                else:
+                    tmp = order[i]
+                    order[i] = order[j]
+                    order[j] = tmp
+                    j -= 1
+            mid = i
+        else:
+            # all centroids equal, or too deep: median split along the widest centroid axis
+            a = 0
+            if cy1 - cy0 > cx1 - cx0:
+                a = 1
+            if cz1 - cz0 > max(cx1 - cx0, cy1 - cy0):
+                a = 2
+            for k in range(s, e):
+                keys[k] = centroid[order[k], a]
+            perm = np.argsort(keys[s:e], kind="mergesort")
+            seg = order[s:e].copy()
+            for k in range(n):
+                order[s + k] = seg[perm[k]]
+            mid = s + n // 2
+        if mid <= s or mid >= e:
+            mid = s + n // 2
+        lc = n_nodes
+        n_nodes += 2
+        left[node] = lc
+        # push right first so the left child is built next
+        st_node[sp] = lc + 1
+        st_start[sp] = mid
+        st_end[sp] = e
+        st_depth[sp] = depth + 1
+        sp += 1
+        st_node[sp] = lc
+        st_start[sp] = s
+        st_end[sp] = mid
+        st_depth[sp] = depth + 1
+        sp += 1
+    return order, lo[:n_nodes], hi[:n_nodes], left[:n_nodes], start[:n_nodes], count[:n_nodes]
+
+
+@njit(**KERNEL)
+def collapse_wide(lo, hi, left, start, count):
+    """Collapse a binary BVH into 4-wide nodes (``nodes_f``, ``nodes_i`` of the module layout).
+
+    Each wide node takes a binary node's two children and repeatedly opens the inner child with
+    the largest surface area until it has 4 children or only leaves.
+
+    Returns
+    -------
+    nodes_f : (24 * W,) float32 ndarray
+    nodes_i : (4 * W,) int32 ndarray
+    """
+    m = left.shape[0]
+    cap = max(1, m)
+    nodes_f = np.empty(24 * cap, np.float32)
+    nodes_i = np.full(4 * cap, -1, np.int32)
+    for k in range(24 * cap):
+        nodes_f[k] = np.inf if (k // 4) % 2 == 0 else -np.inf
+    if m == 0:
+        return nodes_f[:24], nodes_i[:4]
+    queue = np.empty(cap, np.int64)  # binary node of each wide node
+    queue[0] = 0
+    n_wide = 1
+    head = 0
+    kids = np.empty(4, np.int64)
+    while head < n_wide:
+        b = queue[head]
+        w = head
+        head += 1
+        if left[b] < 0:
+            kids[0] = b
+            nk = 1
+        else:
+            kids[0] = left[b]
+            kids[1] = left[b] + 1
+            nk = 2
+        while nk < 4:
+            best = -1
+            best_area = -1.0
+            for k in range(nk):
+                c = kids[k]
+                if left[c] >= 0:
+                    area = _half_area(lo[c, 0], lo[c, 1], lo[c, 2], hi[c, 0], hi[c, 1], hi[c, 2])
+                    if area > best_area:
+                        best_area = area
+                        best = k
+            if best < 0:
+                break
+            c = kids[best]
+            kids[best] = left[c]
+            kids[nk] = left[c] + 1
+            nk += 1
+        for k in range(nk):
+            c = kids[k]
+            for q in range(3):
+                nodes_f[24 * w + 8 * q + k] = lo[c, q]
+                nodes_f[24 * w + 8 * q + 4 + k] = hi[c, q]
+            if left[c] < 0:
+                if count[c] == 0:
+                    nodes_i[4 * w + k] = -1
+                    for q in range(3):
+                        nodes_f[24 * w + 8 * q + k] = np.inf
+                        nodes_f[24 * w + 8 * q + 4 + k] = -np.inf
+                else:
+                    nodes_i[4 * w + k] = ~((start[c] << 3) | count[c])
+            else:
+                queue[n_wide] = c
+                nodes_i[4 * w + k] = n_wide
+                n_wide += 1
+    return nodes_f[: 24 * n_wide].copy(), nodes_i[: 4 * n_wide].copy()
+
+
+@njit(**KERNEL)
+def gather_triangles(positions, triangles, order):
+    """Leaf-order vertex table ``tris_f`` (9 T,) float32 from positions and triangles."""
+    n = order.shape[0]
+    out = np.empty(9 * n, np.float32)
+    for k in range(n):
+        t = order[k]
+        for j in range(3):
+            v = triangles[t, j]
+            for q in range(3):
+                out[9 * k + 3 * j + q] = positions[v, q]
+    return out
