@@ -204,6 +204,8 @@ def srgb_encode(linear) -> np.ndarray:
         a * _SLOPE,
         (1.0 + _OFFSET) * np.power(a, 1.0 / _GAMMA) - _OFFSET,
     )
+    # 1.055 * 1 - 0.055 rounds to 1 - 2**-53: keep display white exactly 1 (code 255, 65535)
+    out = np.where(a == 1.0, 1.0, out)
     return np.copysign(out, arr)
 
 
