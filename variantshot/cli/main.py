@@ -39,6 +39,10 @@ def main(
 
 # (command name, "module:function"); each function's docstring's first line is its one-line help.
 COMMANDS: list[tuple[str, str]] = [
+    ("qa", "variantshot.cli.qa:qa"),
+    ("approve", "variantshot.cli.approve:approve"),
+    ("reject", "variantshot.cli.approve:reject"),
+    ("sheet", "variantshot.cli.sheet:sheet"),
 ]
 
 for _name, _target in COMMANDS:
