@@ -40,7 +40,7 @@ CELL_W = THUMB + 2 * PAD
 CAPTION_H = 128
 CELL_H = PAD + THUMB + CAPTION_H
 MARGIN = 24
-HEADER_H = 118
+HEADER_H = 136
 ANGLE_HEADER_H = 28
 ROWS_PER_PDF_PAGE = 3
 
@@ -268,9 +268,13 @@ def _draw_cell(page, draw, x: int, y: int, cell: SheetCell | None) -> None:
         ty += 17
     draw.text((bx, ty), _ellipsis(f"angle: {cell.angle}", _font(12), tw), font=_font(12), fill=_MUTED)
     ty += 20
-    qa_kind = cell.qa_status if cell.qa_status in (PASS, WARN, FAIL) else "none"
-    qa_key = cell.qa_status if cell.qa_status in (PASS, WARN, FAIL) else None
-    w = _badge(draw, bx, ty, qa_kind, _QA_WORD[qa_key], _QA_COLOUR[qa_key])
+    if cell.status != "rendered":
+        w = _badge(draw, bx, ty, FAIL, "NOT RENDERED", _QA_COLOUR[FAIL])
+    else:
+        qa_kind = cell.qa_status if cell.qa_status in (PASS, WARN, FAIL) else "none"
+        qa_key = cell.qa_status if cell.qa_status in (PASS, WARN, FAIL) else None
+        w = _badge(draw, bx, ty, qa_kind, _QA_WORD[qa_key], _QA_COLOUR[qa_key],
+                   outline_only=qa_key is None)
     _badge(draw, bx + w + 6, ty, cell.approval, _APPROVAL_WORD[cell.approval],
            _APPROVAL_COLOUR[cell.approval], outline_only=cell.approval == _approvals.PENDING)
     ty += 27
@@ -292,8 +296,11 @@ def _draw_page(title: str, subtitle: str, angles: list[str], rows, page_label: s
     draw = ImageDraw.Draw(page)
     tw = width - 2 * MARGIN
     draw.text((MARGIN, MARGIN), _ellipsis(title, _font(22, True), tw), font=_font(22, True), fill=_INK)
-    draw.text((MARGIN, MARGIN + 32), _ellipsis(subtitle, _font(13), tw), font=_font(13), fill=_MUTED)
-    y = MARGIN + 54
+    y = MARGIN + 32
+    for line in _wrap(subtitle, _font(13), tw, 2):
+        draw.text((MARGIN, y), line, font=_font(13), fill=_MUTED)
+        y += 17
+    y += 4
     for line in _wrap("Caution: " + CAUTION, _font(13, True), tw, 2):
         draw.text((MARGIN, y), line, font=_font(13, True), fill=(150, 60, 0))
         y += 17
