@@ -41,6 +41,7 @@ __all__ = [
     "resolve_shots",
     "record_decision",
     "approve_passing",
+    "passing_shots",
     "default_reviewer",
     "Decision",
 ]
@@ -183,7 +184,7 @@ def record_decision(out_dir, shot_ids, state: str, *, by: str | None = None, not
     out_dir : path
         The batch's output folder.
     shot_ids : list of str
-        Exact shot ids (see :func:`resolve_shots` for globs).
+        Shot ids or globs on ids (see :func:`resolve_shots`).
     state : {"approved", "rejected"}
     by : str, optional
         Reviewer name; the OS user by default.
@@ -202,9 +203,7 @@ def record_decision(out_dir, shot_ids, state: str, *, by: str | None = None, not
     out_dir = Path(out_dir)
     shots = load_manifest(out_dir)
     decisions = load_approvals(out_dir)
-    unknown = [sid for sid in shot_ids if sid not in shots]
-    if unknown:
-        resolve_shots(unknown, shots, file=out_dir / MANIFEST_FILE)  # raises with close matches
+    shot_ids = resolve_shots(shot_ids, shots, file=out_dir / MANIFEST_FILE)
     not_rendered = [sid for sid in shot_ids
                     if shots[sid].get("status", "rendered") != "rendered"
                     or not shots[sid].get("content_hash")]

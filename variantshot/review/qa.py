@@ -212,6 +212,7 @@ def run_qa(
     coverage=None,
     film=None,
     background: str = "white",
+    shadow=None,
     colour_lab_d65=None,
     swatch_srgb8=None,
     noise_target: float | None = None,
@@ -232,6 +233,11 @@ def run_qa(
         the coverage and the residual-noise check.
     background : {"white", "transparent", "backdrop"}
         Background purity is judged on ``"white"`` only.
+    shadow : (H, W) float ndarray, optional
+        The product's shadow on the background as the compositing step found it
+        (:func:`variantshot.imaging.background.shadow_ratio`: 1.0 = unshadowed).  Purity is then
+        judged on every non-product pixel with ``shadow >= 1``; without it, outside a geometric
+        shadow zone around the product's box (:func:`.metrics.shadow_zone`).
     colour_lab_d65 : (3,) float, optional
         The variant's catalog colour, CIELAB D65.  With ``swatch_srgb8`` it gives the colour check.
     swatch_srgb8 : (3,) float or (h, w, 3) uint8 ndarray, optional
@@ -322,7 +328,13 @@ def run_qa(
 
     # 3. background purity, white background only
     if background == "white":
-        zone = metrics.shadow_zone(mask, s.shadow_margin_frac) | mask
+        if shadow is not None:
+            shadow = np.asarray(shadow, dtype=np.float64)
+            if shadow.shape != hw:
+                raise ValueError(f"run_qa: shadow {shadow.shape} does not match the image {hw}")
+            zone = mask | (shadow < 1.0)
+        else:
+            zone = metrics.shadow_zone(mask, s.shadow_margin_frac) | mask
         purity = metrics.white_purity(rgb, zone)
         st = PASS if purity >= s.purity_pass else (WARN if purity >= s.purity_warn else FAIL)
         checks.append(Check(

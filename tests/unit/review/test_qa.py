@@ -136,3 +136,17 @@ def test_worst_status():
     assert qa.worst_status([]) == "pass"
     assert qa.worst_status(["pass", "warn"]) == "warn"
     assert qa.worst_status(["warn", "fail", "pass"]) == "fail"
+
+
+def test_purity_with_the_compositing_shadow_map():
+    img, cov = packshot(shadow=False)
+    shadow = np.ones((200, 200))
+    shadow[180:200, :] = 0.9  # a long shadow band at the bottom, inside the shadow map
+    img[180:200, :] = 230
+    # every grey pixel lies where the shadow map says "shadowed", so nothing judged is grey
+    res = qa.run_qa(img, coverage=cov, shadow=shadow)
+    assert res.check("background_purity").value == 1.0
+    img[0, 0] = 254  # one near-white pixel outside the shadow is counted
+    n_judged = 200 * 200 - 170 * 170 - (20 * 200 - 170 * 5)
+    res = qa.run_qa(img, coverage=cov, shadow=shadow)
+    assert res.check("background_purity").value == pytest.approx(1 - 1 / n_judged, abs=1e-5)

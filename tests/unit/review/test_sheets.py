@@ -1,0 +1,116 @@
+"""review.sheets: PNG grid, multi-page PDF (read back with pypdf), HTML (parsed with html.parser), exports."""
+
+import csv
+import html.parser
+import json
+
+import pytest
+from PIL import Image
+
+from unit.review._batch import DEFAULT_VARIANTS, make_batch
+from variantshot.errors import InputError
+from variantshot.review import approvals, sheets
+
+SCRIPT = "<script>alert('x')</script>"
+
+
+@pytest.fixture
+def batch(tmp_path):
+    out = tmp_path / "out"
+    variants = DEFAULT_VARIANTS + [
+        ("CUP-9", "cup", f"Ink {SCRIPT}", "matte", "#223344"),
+        ("CUP-10", "cup", "Chalk", "matte", "#E0E0D8"),
+    ]
+    make_batch(out, variants=variants, failed=("LAMP-7-OAK--three-quarter",))
+    approvals.record_decision(out, ["MUG-001-RED*", "CUP-9--front"], "approved", by="ana")
+    return out
+
+
+class _Collect(html.parser.HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.imgs, self.scripts, self.selects, self.text = [], 0, [], []
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if tag == "img":
+            self.imgs.append(a)
+        elif tag == "script":
+            self.scripts += 1
+        elif tag == "select":
+            self.selects.append(a.get("id"))
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+def test_png_sheet_has_one_fixed_size_cell_per_variant_and_angle(batch):
+    paths = sheets.build_sheets(batch, formats=("png",))
+    png = batch / "sheets/contact-sheet.png"
+    assert png in paths
+    with Image.open(png) as im:
+        w, h = im.size
+    n_rows, n_cols = 5, 2
+    assert w == max(760, 2 * sheets.MARGIN + n_cols * sheets.CELL_W + (n_cols - 1) * 8)
+    assert h == sheets.HEADER_H + sheets.ANGLE_HEADER_H + n_rows * (sheets.CELL_H + 8) + sheets.MARGIN
+
+
+def test_pdf_has_expected_pages_and_images(batch):
+    pypdf = pytest.importorskip("pypdf")
+    sheets.build_sheets(batch, formats=("pdf",), rows_per_page=2)
+    reader = pypdf.PdfReader(str(batch / "sheets/contact-sheet.pdf"))
+    assert len(reader.pages) == 3  # 5 variants, 2 per page
+    assert [len(p.images) for p in reader.pages] == [1, 1, 1]  # each page is one raster
+    sizes = {(round(float(p.mediabox.width)), round(float(p.mediabox.height))) for p in reader.pages}
+    assert len(sizes) == 1  # pages of even size, the last one too
+
+
+def test_html_escapes_catalog_values_and_links_every_image(batch):
+    sheets.build_sheets(batch, formats=("html",))
+    text = (batch / "sheets/contact-sheet.html").read_text(encoding="utf-8")
+    p = _Collect()
+    p.feed(text)
+    manifest = approvals.load_manifest(batch)
+    rendered = [sid for sid, e in manifest.items() if e["status"] == "rendered"]
+    assert len(p.imgs) == len(rendered)
+    for img in p.imgs:  # relative paths that resolve from sheets/ to the files
+        assert not img["src"].startswith(("http:", "https:", "/", "file:"))
+        assert (batch / "sheets" / img["src"]).resolve().is_file()
+    assert p.scripts == 1  # only our own filter script; the catalog value stayed text
+    assert SCRIPT not in text and "&lt;script&gt;" in text
+    assert any(SCRIPT in t for t in p.text)
+    assert p.selects == ["f-product", "f-qa", "f-approval"]
+    assert "http://" not in text and "https://" not in text  # no network resources
+
+
+def test_approved_only_and_export(batch):
+    paths = sheets.build_sheets(batch, approved_only=True, formats=("png", "html"))
+    assert batch / "sheets/approved-sheet.png" in paths
+    p = _Collect()
+    p.feed((batch / "sheets/approved-sheet.html").read_text(encoding="utf-8"))
+    assert len(p.imgs) == 3
+    rows = list(csv.DictReader((batch / "sheets/approved.csv").open(encoding="utf-8")))
+    data = json.loads((batch / "sheets/approved.json").read_text(encoding="utf-8"))["shots"]
+    assert [r["id"] for r in rows] == [d["id"] for d in data] == [
+        "MUG-001-RED--front", "MUG-001-RED--three-quarter", "CUP-9--front"]
+    for r in data:  # sizes as the files and Pillow report them
+        f = batch / r["path"]
+        assert r["bytes"] == f.stat().st_size
+        with Image.open(f) as im:
+            assert (r["width"], r["height"]) == im.size
+    assert rows[2]["colourway"] == f"Ink {SCRIPT}"
+
+
+def test_bad_format_is_an_input_error(batch):
+    with pytest.raises(InputError, match="tiff"):
+        sheets.build_sheets(batch, formats=("png", "tiff"))
+
+
+def test_text_fitting_never_exceeds_width():
+    font = sheets._font(13)
+    long = "Natural oak with a very long colourway name that will never fit in one cell"
+    for line in sheets._wrap(long, font, 200, 2):
+        assert font.getlength(line) <= 200
+    assert sheets._ellipsis(long, font, 120).endswith("…")
+    assert font.getlength(sheets._ellipsis(long, font, 120)) <= 120
+    assert sheets._ellipsis("short", font, 120) == "short"
