@@ -18,8 +18,10 @@ Pipeline (scene-referred linear sRGB in, display-referred values out), in this o
      It is C1-continuous at the knee (slope 1) and tends to 1 as m grows, so every colour whose
      channels are all at most 0.8 is passed through bit-for-bit (catalog colour checks are not
      affected), and highlights compress smoothly instead of clipping.  Linear 1.0 maps to
-     0.926 (code 247); a background meant to print as 255 under ``"neutral"`` needs a linear
-     value of about 1.57 or more after exposure.
+     0.926 (code 247).  Under ``"neutral"`` a background rounds to 255 without dither from a
+     linear 1.57 on, and is exactly display white (so never dithered) only from about 8 on,
+     where the shoulder rounds to 1.0 in float64; composite white backgrounds with
+     ``tone="none"`` when they must be exactly 255.
 3. **sRGB encoding** (IEC 61966-2-1, :func:`variantshot.imaging.colour.srgb_encode`).
 4. **Quantisation** (:func:`quantise`): 8-bit with an optional deterministic triangular dither
    (two uniform ±0.5 LSB terms summed) whose noise comes from a hash of (element index, seed);

@@ -55,6 +55,10 @@ def test_neutral_shoulder_formula_and_shape():
     assert (above - k) / h == pytest.approx(1.0, abs=1e-5)
     assert tone.tone_curve(np.full((1, 1, 3), 1.0), "neutral")[0, 0, 0] == pytest.approx(
         k + (1 - k) * (1 - np.exp(-1.0)))
+    # documented thresholds: 1.57 rounds to 255 undithered; from 8 on the value is exactly white
+    v = tone.display_from_linear(np.array([[[1.57] * 3, [8.0] * 3, [1.0] * 3]]), 0.0, "neutral")
+    np.testing.assert_array_equal(tone.quantise(v, 8, dither=False)[0, :, 0], [255, 255, 247])
+    assert v[0, 1, 0] == 1.0
 
 
 def test_neutral_keeps_channel_ratios():
