@@ -265,7 +265,7 @@ class GltfData:
 
     # ------------------------------------------------------------------ accessors
     def accessor_info(self, index, where: str, semantic: str = "") -> dict:
-        """Validate ``accessors[index]`` without reading data.
+        """Validate ``accessors[index]`` and its extent in its bufferView and buffer, reading no data.
 
         Returns a dict with ``count``, ``type``, ``component_type``, ``normalized``,
         ``n_components`` and ``label`` (``"accessor 7 (POSITION)"``, for messages).
@@ -285,8 +285,9 @@ class GltfData:
         normalized = self.bool_field(acc, "normalized", aw, False)
         if normalized and ctype not in NORMALIZED_DIVISORS:
             raise self.error(aw, f"normalized must not be true for {COMPONENT_NAMES[ctype]} components")
-        n_comp = element_layout(ctype, type_name)[0]
-        return {
+        n_comp, _, _, elem_size = element_layout(ctype, type_name)
+        byte_offset = self.int_field(acc, "byteOffset", aw, default=0, minimum=0)
+        info = {
             "index": index,
             "accessor": acc,
             "count": count,
@@ -295,7 +296,38 @@ class GltfData:
             "normalized": normalized,
             "n_components": n_comp,
             "label": label,
+            "byte_offset": byte_offset,
+            "element_size": elem_size,
+            "view": None,
         }
+        if "bufferView" in acc:
+            view_index = acc["bufferView"]
+            _, buffer_index, view_offset, view_length, stride = self._view(view_index, where, label)
+            stride = stride or elem_size
+            if stride < elem_size:
+                raise self.error(
+                    where,
+                    f"{label}: bufferView {int(view_index)} byteStride {stride} is smaller than "
+                    f"one {type_name} element of {COMPONENT_NAMES[ctype]} ({elem_size} bytes)",
+                )
+            needed = byte_offset + stride * (count - 1) + elem_size
+            if needed > view_length:
+                raise self.error(
+                    where,
+                    f"{label} reads past the end of bufferView {int(view_index)} (count {count} "
+                    f"needs {needed} bytes from the view's start, the view has {view_length})",
+                )
+            info["view"] = (int(view_index), buffer_index, view_offset, stride)
+        else:
+            if byte_offset:
+                raise self.error(aw, "byteOffset must not be set when there is no bufferView")
+            if count * elem_size > MAX_UNBACKED_BYTES:
+                raise self.error(
+                    where,
+                    f"{label} declares {count} elements with no bufferView ({count * elem_size} "
+                    f"bytes of zeros; the limit is {MAX_UNBACKED_BYTES})",
+                )
+        return info
 
     def read_accessor(self, index, where: str, semantic: str = "", *, as_float: bool = False) -> np.ndarray:
         """Decode ``accessors[index]`` into a C-contiguous array of its own (never a view of the file).
@@ -333,47 +365,23 @@ class GltfData:
         if cached is not None:
             return cached
         info = self.accessor_info(index, where, semantic)
-        acc, label, aw = info["accessor"], info["label"], f"accessors[{info['index']}]"
+        acc = info["accessor"]
         ctype, type_name, count = info["component_type"], info["type"], info["count"]
         dtype = COMPONENT_DTYPES[ctype]
         n_comp, column_bytes, column_stride, elem_size = element_layout(ctype, type_name)
         cols, rows = ELEMENT_SHAPES[type_name]
-        byte_offset = self.int_field(acc, "byteOffset", aw, default=0, minimum=0)
-
-        if "bufferView" in acc:
-            view_index = acc["bufferView"]
-            _, buffer_index, view_offset, view_length, stride = self._view(view_index, where, label)
-            stride = stride or elem_size
-            if stride < elem_size:
-                raise self.error(
-                    where,
-                    f"{label}: bufferView {int(view_index)} byteStride {stride} is smaller than "
-                    f"one {type_name} element of {COMPONENT_NAMES[ctype]} ({elem_size} bytes)",
-                )
-            needed = byte_offset + stride * (count - 1) + elem_size
-            if needed > view_length:
-                raise self.error(
-                    where,
-                    f"{label} reads past the end of bufferView {int(view_index)} (count {count} "
-                    f"needs {needed} bytes from the view's start, the view has {view_length})",
-                )
-            data = self.buffer(buffer_index, f"bufferViews[{int(view_index)}]")
+        if info["view"] is not None:
+            view_index, buffer_index, view_offset, stride = info["view"]
+            data = self.buffer(buffer_index, f"bufferViews[{view_index}]")
             comp = dtype.itemsize
             if cols == 1:
                 shape, strides = (count, rows), (stride, comp)
             else:
                 shape, strides = (count, cols, rows), (stride, column_stride, comp)
-            raw = np.ndarray(shape, dtype=dtype, buffer=data, offset=view_offset + byte_offset, strides=strides)
+            raw = np.ndarray(shape, dtype=dtype, buffer=data, offset=view_offset + info["byte_offset"],
+                             strides=strides)
             values = np.array(raw, dtype=dtype.newbyteorder("="), order="C", copy=True)
         else:
-            if byte_offset:
-                raise self.error(aw, "byteOffset must not be set when there is no bufferView")
-            if count * elem_size > MAX_UNBACKED_BYTES:
-                raise self.error(
-                    where,
-                    f"{label} declares {count} elements with no bufferView ({count * elem_size} "
-                    f"bytes of zeros; the limit is {MAX_UNBACKED_BYTES})",
-                )
             shape = (count, rows) if cols == 1 else (count, cols, rows)
             values = np.zeros(shape, dtype=dtype.newbyteorder("="))
 

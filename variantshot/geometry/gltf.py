@@ -368,12 +368,18 @@ def _local_matrix(g: GltfData, node: dict, where: str) -> np.ndarray:
     return m
 
 
+def _prescale(v: np.ndarray) -> np.ndarray:
+    """``v`` divided by its largest magnitude, so that squaring it cannot overflow."""
+    top = float(np.max(np.abs(v)))
+    return v / top if top > 0 else v
+
+
 def _rigid(world: np.ndarray) -> np.ndarray:
     """A rigid copy of ``world``: same origin and −Z axis, up as close to +Y as possible."""
     out = np.eye(4)
     out[:3, 3] = world[:3, 3]
-    back = world[:3, 2]
-    up = world[:3, 1]
+    back = _prescale(world[:3, 2])
+    up = _prescale(world[:3, 1])
     nb = np.linalg.norm(back)
     if not nb > 0:
         return out
@@ -486,7 +492,10 @@ class _Builder:
                 )
             seen.add(index)
             node = g.obj("nodes", index, parent)
-            world = parent_world @ _local_matrix(g, node, where)
+            with np.errstate(over="ignore", invalid="ignore"):
+                world = parent_world @ _local_matrix(g, node, where)
+            if not np.isfinite(world).all():
+                raise g.error(where, "the world transform overflows (its matrix is not finite)")
             if "mesh" in node:
                 g.obj("meshes", node["mesh"], where, "mesh")
                 instances.append((index, int(node["mesh"]), world))
@@ -525,16 +534,13 @@ class _Builder:
                     if mode not in _TRIANGLE_MODES:
                         continue
                     attrs = g.dict_field(prim, "attributes", pw)
-                    src = prim["indices"] if "indices" in prim else attrs.get("POSITION")
-                    if src is None:
-                        continue
-                    n = g.accessor_info(src, pw, "indices" if "indices" in prim else "POSITION")["count"]
+                    if "POSITION" not in attrs:
+                        continue  # reported when the primitive is decoded
+                    n_v = g.accessor_info(attrs["POSITION"], pw, "POSITION")["count"]
+                    n = g.accessor_info(prim["indices"], pw, "indices")["count"] if "indices" in prim else n_v
                     t = n // 3 if mode == pygltflib.TRIANGLES else max(n - 2, 0)
                     count += t
-                    if "NORMAL" in attrs and "POSITION" in attrs:
-                        vertices += g.accessor_info(attrs["POSITION"], pw, "POSITION")["count"]
-                    else:  # flat normals: three vertices per triangle
-                        vertices += 3 * t
+                    vertices += n_v if "NORMAL" in attrs else 3 * t  # no NORMAL: flat, un-shared
                 per_mesh[mesh_index] = (count, vertices)
             total += per_mesh[mesh_index][0]
             total_vertices += per_mesh[mesh_index][1]
@@ -672,14 +678,21 @@ class _Builder:
         prims = self._mesh(mesh_index)
         g.where = where
         linear = world[:3, :3]
-        det = float(np.linalg.det(linear))
-        if not math.isfinite(det) or abs(det) < 1e-300:
+        normal_matrix = None
+        with np.errstate(all="ignore"):
+            det = float(np.linalg.det(linear))
+            if math.isfinite(det) and abs(det) > 1e-300:
+                try:
+                    normal_matrix = np.linalg.inv(linear).T  # normals: inverse transpose
+                except np.linalg.LinAlgError:
+                    normal_matrix = None
+        if normal_matrix is None or not np.isfinite(normal_matrix).all():
             log.warning("%s: %s has a singular world matrix (zero scale); mesh %d is not drawn", g.file, where, mesh_index)
             return []
-        normal_matrix = np.linalg.inv(linear).T
         out = []
         for prim in prims:
-            positions = (prim["positions"].astype(np.float64) @ linear.T + world[:3, 3]).astype(np.float32)
+            with np.errstate(over="ignore", invalid="ignore"):
+                positions = (prim["positions"].astype(np.float64) @ linear.T + world[:3, 3]).astype(np.float32)
             if not np.isfinite(positions).all():
                 raise g.error(where, f"the world transform of mesh {mesh_index} makes positions non-finite")
             tris = prim["triangles"]
@@ -946,7 +959,7 @@ class _Builder:
             outer = g.number_field(spot, "outerConeAngle", sw, default=math.pi / 4, maximum=math.pi / 2)
             if not inner < outer or not outer > 0:
                 raise g.error(sw, f"needs 0 <= innerConeAngle < outerConeAngle <= pi/2, got {inner:g}, {outer:g}")
-        forward = -world[:3, 2]
+        forward = -_prescale(world[:3, 2])
         length = float(np.linalg.norm(forward))
         direction = tuple(float(v) for v in forward / length) if length > 0 else (0.0, 0.0, -1.0)
         return Light(
@@ -981,10 +994,11 @@ def _triangulate(indices: np.ndarray, mode: int, file: str, where: str) -> np.nd
 
 
 def _unit(v: np.ndarray, fallback=(0.0, 0.0, 1.0)) -> np.ndarray:
-    """Rows of ``v`` normalised to float32; zero rows become ``fallback``."""
-    length = np.linalg.norm(v, axis=1)
+    """Rows of ``v`` normalised to float32; zero (or overflowing) rows become ``fallback``."""
+    with np.errstate(all="ignore"):
+        length = np.linalg.norm(v, axis=1)
     out = np.empty(v.shape, np.float32)
-    ok = length > 0
+    ok = (length > 0) & np.isfinite(length)
     out[ok] = v[ok] / length[ok, None]
     out[~ok] = fallback
     return out
