@@ -45,7 +45,7 @@ if not os.environ.get("NUMBA_CACHE_DIR"):
 import numba  # noqa: E402  (must follow the cache-folder setting)
 
 # Fast-math without nnan/ninf, so np.isfinite / math.isinf guards keep working.
-FASTMATH = frozenset({"nsz", "arcp", "contract", "afn", "reassoc"})
+FASTMATH = {"nsz", "arcp", "contract", "afn", "reassoc"}  # numba wants a set, not a frozenset
 
 # Leaf kernels: compiled once, cached on disk, release the GIL.
 KERNEL = dict(cache=True, nogil=True, fastmath=FASTMATH, error_model="numpy")
