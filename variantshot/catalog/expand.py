@@ -359,6 +359,7 @@ def expand_variant(variant: Variant, library: Library, *, cache: _BufferCache | 
             "colour": variant.colour.as_dict(),
             "material_variant": mv_name,
             "angles": list(angles),
+            "template_cameras": [a for a in angles if a in existing],
             "background": variant.background,
             "rig": variant.rig,
             "catalog_row": variant.line,

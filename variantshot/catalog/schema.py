@@ -100,6 +100,8 @@ class CatalogTable:
         starts in the file.
     errors : list of InputError
         Problems found while reading (encoding, header, field counts).
+    skipped_lines : set of int
+        Rows whose cells cannot be trusted (too many fields); :mod:`.validate` skips them.
     """
 
     file: str
@@ -107,7 +109,7 @@ class CatalogTable:
     header_line: int = 1
     rows: list[tuple[int, dict[str, str]]] = field(default_factory=list)
     errors: list[InputError] = field(default_factory=list)
-    extra_fields: dict[int, list[str]] = field(default_factory=dict)
+    skipped_lines: set[int] = field(default_factory=set)
 
 
 def _has_surrogates(text: str) -> bool:
@@ -234,13 +236,17 @@ def read_catalog_table(path, *, data: bytes | None = None) -> CatalogTable:
         if len(stripped) > n_cols:
             extra = stripped[n_cols:]
             if any(extra):
+                hint = ""
+                if any(c.lower().startswith("lab") and ")" not in c for c in stripped):
+                    hint = '; a lab(...) colour has commas, so it must be quoted: "lab(50, 10, -20)"'
                 table.errors.append(
                     InputError(
-                        f"row has {len(stripped)} fields but the header has {n_cols} columns",
+                        f"row has {len(stripped)} fields but the header has {n_cols} columns{hint}",
                         file=file, row=line, column=n_cols + 1,
                         accepted=f"at most {n_cols} fields per row; quote fields that contain commas",
                     )
                 )
+                table.skipped_lines.add(line)
         for name, value in row.items():
             if _has_surrogates(value):
                 table.errors.append(

@@ -220,6 +220,8 @@ def validate_rows(table, library: Library) -> tuple[list[Variant], list[InputErr
     first_line_of_sku: dict[str, int] = {}
     safe_owner: dict[str, tuple[str, int]] = {}
     for line, row in table.rows:
+        if line in table.skipped_lines:
+            continue
         row_errors_before = len(errors)
 
         def err(column, message, accepted=None):

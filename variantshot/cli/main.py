@@ -39,6 +39,9 @@ def main(
 
 # (command name, "module:function"); each function's docstring's first line is its one-line help.
 COMMANDS: list[tuple[str, str]] = [
+    ("check", "variantshot.cli.check:check"),
+    ("plan", "variantshot.cli.plan:plan"),
+    ("expand", "variantshot.cli.expand:expand"),
     ("qa", "variantshot.cli.qa:qa"),
     ("approve", "variantshot.cli.approve:approve"),
     ("reject", "variantshot.cli.approve:reject"),

@@ -1,0 +1,132 @@
+"""Shot keys: a SHA-256 content hash over everything that decides a shot's pixels.
+
+A shot is re-rendered exactly when its key changes.  The key covers, in this order and as
+canonical JSON (sorted keys, no spaces, floats by ``repr``):
+
+1. ``"variantshot-shot-key/1"`` (the key format),
+2. the renderer version (``variantshot X.Y.Z``),
+3. the template file's bytes (SHA-256) and the finish file's bytes,
+4. the row's values (every column, after stripping spaces) and the material-variant entry,
+5. the bytes of the product's model files (the model glTF and every buffer or image the
+   scene references),
+6. the rig's name and the bytes of its definition file (or its parsed digest),
+7. the render settings (any dataclass, mapping or sequence, canonicalised: dataclasses by
+   their fields and class name),
+8. the angle, with its preset definition and the framing parameters.
+
+File digests are cached per (path, size, mtime_ns), so planning a big catalog hashes each model
+once.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import enum
+import hashlib
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+
+KEY_FORMAT = "variantshot-shot-key/1"
+_DIGESTS: dict[tuple, str] = {}
+
+
+def canonical(obj):
+    """A JSON-ready, deterministic form of ``obj`` (dataclasses, mappings, sequences, paths, arrays)."""
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        return {"__class__": type(obj).__name__,
+                **{f.name: canonical(getattr(obj, f.name)) for f in dataclasses.fields(obj)}}
+    if isinstance(obj, enum.Enum):
+        return canonical(obj.value)
+    if isinstance(obj, dict):
+        return {str(k): canonical(v) for k, v in sorted(obj.items(), key=lambda kv: str(kv[0]))}
+    if isinstance(obj, (list, tuple)):
+        return [canonical(v) for v in obj]
+    if isinstance(obj, (set, frozenset)):
+        return sorted(canonical(v) for v in obj)
+    if isinstance(obj, np.ndarray):
+        return canonical(obj.tolist())
+    if isinstance(obj, np.generic):
+        return canonical(obj.item())
+    if isinstance(obj, float):
+        return repr(obj) if not math.isfinite(obj) else float(repr(obj))
+    if isinstance(obj, Path):
+        return obj.as_posix()
+    if obj is None or isinstance(obj, (str, int, bool)):
+        return obj
+    return repr(obj)
+
+
+def canonical_json(obj) -> str:
+    return json.dumps(canonical(obj), sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+
+
+def file_sha256(path) -> str:
+    """SHA-256 hex of a file's bytes, cached while its size and mtime stay the same."""
+    p = Path(path).resolve()
+    st = p.stat()
+    k = (str(p), st.st_size, st.st_mtime_ns)
+    digest = _DIGESTS.get(k)
+    if digest is None:
+        digest = hashlib.sha256(p.read_bytes()).hexdigest()
+        _DIGESTS[k] = digest
+    return digest
+
+
+def shot_key(
+    *,
+    renderer_version: str,
+    template_files,
+    row: dict,
+    model_files,
+    rig_name: str,
+    rig_definition,
+    settings,
+    angle: str,
+    angle_definition=None,
+    material_variant: str | None = None,
+) -> str:
+    """The content-hash key of one shot (see the module docstring).
+
+    Parameters
+    ----------
+    renderer_version : str
+    template_files : sequence of path
+        The template and the finish file.
+    row : dict
+        The catalog row's cells.
+    model_files : sequence of path
+        Model glTF and the buffers/images the scene references.
+    rig_name : str
+    rig_definition : bytes, str or object
+        The rig file's bytes, or anything :func:`canonical` accepts.
+    settings : object
+        Render settings (dataclass, mapping, ...).
+    angle : str
+    angle_definition : object, optional
+        The preset and framing parameters (None for a template camera).
+    material_variant : str, optional
+
+    Returns
+    -------
+    str
+        64 hex digits.
+    """
+    if isinstance(rig_definition, (bytes, bytearray)):
+        rig_part = hashlib.sha256(bytes(rig_definition)).hexdigest()
+    else:
+        rig_part = canonical(rig_definition)
+    parts = {
+        "format": KEY_FORMAT,
+        "renderer": renderer_version,
+        "templates": [[Path(p).name, file_sha256(p)] for p in template_files],
+        "row": {k: row[k] for k in sorted(row)},
+        "material_variant": material_variant,
+        "models": [[Path(p).name, file_sha256(p)] for p in model_files],
+        "rig": [rig_name, rig_part],
+        "settings": canonical(settings),
+        "angle": [angle, canonical(angle_definition)],
+    }
+    return hashlib.sha256(canonical_json(parts).encode("utf-8")).hexdigest()
