@@ -1,0 +1,161 @@
+"""Rendering: ``render(scene, settings)`` packs a scene for the path kernels and runs them.
+
+This module is the only Python caller of ``path_kernels``.  It builds the BVH, the material
+table and texture atlas, the light set and the packed camera, then runs the kernel in passes
+("waves") of ``settings.wave_spp`` samples per pixel, calling ``progress(done, total)`` after
+each, and resolves the film.  See ``path_kernels`` for the estimator.
+"""
+
+from __future__ import annotations
+
+import logging
+import time
+
+import numpy as np
+
+from ..errors import RenderError
+from ..geometry.scene import Camera, Scene
+from ..imaging.film import Film, FilmSums, resolve_film
+from ..settings import RenderSettings
+from .camera import choose_camera, pack_camera
+from .lights import build_lights, has_lights
+from .materials import pack_materials
+
+log = logging.getLogger(__name__)
+
+#: Pixel reconstruction filter: a tent of this radius (pixels), importance-sampled (each
+#: sample has weight 1 and lands in one pixel, so pixels stay independent).
+FILTER_RADIUS_PX = 1.0
+
+
+def _env_arrays(env):
+    if env is None:
+        return (
+            np.zeros((1, 1, 3), np.float32),
+            np.array([0.0, 1.0]),
+            np.array([[0.0, 1.0]]),
+            np.array([0.0, 1.0, 0.0, 0.0]),
+            False,
+        )
+    return (
+        np.ascontiguousarray(env.pixels, dtype=np.float32),
+        np.ascontiguousarray(env.cdf_rows, dtype=np.float64),
+        np.ascontiguousarray(env.cdf_cols, dtype=np.float64),
+        np.ascontiguousarray(env.params, dtype=np.float64),
+        True,
+    )
+
+
+def needs_default_light(scene: Scene, env=None) -> bool:
+    """True when nothing would light the scene: no punctual light, no emitter and no environment."""
+    return env is None and not has_lights(scene)
+
+
+def ray_epsilon(scene: Scene) -> float:
+    """Scale-aware offset (metres) for rays leaving a surface: 1e-4 of the scene's diagonal,
+    plus enough float32 steps (positions are float32) for the largest coordinate."""
+    lo, hi = scene.bounds()
+    extent = float(np.linalg.norm(hi - lo))
+    big = float(max(np.abs(lo).max(initial=0.0), np.abs(hi).max(initial=0.0)))
+    return max(1e-4 * extent, 1e-7) + 4e-6 * big
+
+
+def render(
+    scene: Scene,
+    settings: RenderSettings,
+    *,
+    env=None,
+    camera: Camera | None = None,
+    progress=None,
+    bvh=None,
+) -> Film:
+    """Render ``scene`` by path tracing.
+
+    Parameters
+    ----------
+    scene : Scene
+        World-space triangles, materials, textures, cameras and punctual lights.
+    settings : RenderSettings
+        Size, samples, seed, camera choice, lens, mode, threads.
+    env : EnvMap, optional
+        Environment light (``transport.environment.make_environment``); None: black.
+    camera : Camera, optional
+        Overrides ``settings.camera_name`` and the scene's cameras.
+    progress : callable, optional
+        ``progress(done_spp, total_spp)``, called after each pass.
+    bvh : BVH, optional
+        A prebuilt ``build_bvh(scene.positions, scene.triangles)`` to reuse.
+
+    Returns
+    -------
+    Film
+        Radiance (linear, scene-referred) with albedo, normal, alpha, depth and variance passes.
+
+    Raises
+    ------
+    RenderError
+        Unknown camera name, bad material values, bad settings.
+    """
+    from .. import _jit
+    from ..geometry.bvh import build_bvh
+    from . import path_kernels
+
+    if not isinstance(settings, RenderSettings):
+        raise RenderError(f"render: settings must be a RenderSettings, got {type(settings).__name__}")
+    _jit.set_threads(settings.threads)
+    started = time.perf_counter()
+    width, height = settings.width, settings.height
+    if camera is None:
+        camera = choose_camera(scene, settings.camera_name, width / height)
+    lo, hi = scene.bounds()
+    cam = pack_camera(
+        camera,
+        width,
+        height,
+        aperture_f_number=settings.aperture_f_number,
+        focus_distance_m=settings.focus_distance_m,
+        focus_point=0.5 * (lo + hi),
+    )
+    mat_table, atlas = pack_materials(scene)
+    n_mat = mat_table.shape[0]
+    if scene.n_triangles and (scene.tri_material.min() < 0 or scene.tri_material.max() >= n_mat):
+        raise RenderError(f"{scene.source}: a triangle refers to a material that does not exist ({n_mat} materials)")
+    lights = build_lights(scene, mat_table, env)
+    env_pixels, env_rows, env_cols, env_params, has_env = _env_arrays(env)
+    if bvh is None:
+        bvh = build_bvh(scene.positions, scene.triangles)
+    has_alpha = bool(np.any(mat_table[:, 10] != 0))
+    eps = ray_epsilon(scene)
+    sums = FilmSums.zeros(width, height)
+    positions = np.ascontiguousarray(scene.positions, dtype=np.float32)
+    normals = np.ascontiguousarray(scene.normals, dtype=np.float32)
+    uvs = np.ascontiguousarray(scene.uvs, dtype=np.float32)
+    colours = np.ascontiguousarray(scene.colours, dtype=np.float32)
+    triangles = np.ascontiguousarray(scene.triangles, dtype=np.int32)
+    tri_material = np.ascontiguousarray(scene.tri_material, dtype=np.int32)
+    fopts = np.array([eps, FILTER_RADIUS_PX], np.float64)
+    total = settings.spp
+    done = 0
+    while done < total:
+        end = min(total, done + settings.wave_spp)
+        opts = np.array(
+            [width, height, done, end, settings.seed, settings.max_depth,
+             1 if settings.mode == "baseline" else 0, 1 if has_env else 0, 1 if has_alpha else 0],
+            np.int64,
+        )
+        path_kernels.render_rows(
+            positions, normals, uvs, colours, triangles, tri_material,
+            bvh.nodes_f, bvh.nodes_i, bvh.tris_f, bvh.tri_ids,
+            mat_table, atlas.pixels, atlas.table,
+            lights.punctual, lights.emit_tris, lights.emit_cdf, lights.tri_emit_prob, lights.sel_cdf,
+            env_pixels, env_rows, env_cols, env_params,
+            cam, opts, fopts,
+            sums.rgb, sums.rgb_sq, sums.albedo, sums.normal, sums.alpha, sums.depth, sums.depth_n,
+        )
+        done = end
+        sums.n = done
+        if progress is not None:
+            progress(done, total)
+    film = resolve_film(sums)
+    log.debug("rendered %dx%d at %d spp in %.2f s", width, height, total, time.perf_counter() - started)
+    return film

@@ -1,0 +1,121 @@
+"""Materials: glTF metallic-roughness materials packed into the kernels' float32 table.
+
+The column layout is documented in ``bsdf_kernels`` (one row per material, 64 columns, spare
+columns for the KHR extensions still to come).  Interpreted here:
+
+* pbrMetallicRoughness factors and textures, emissive factor and texture,
+  ``KHR_materials_emissive_strength`` (multiplies the emission) and ``KHR_materials_ior``
+  (sets the dielectric f0 = ((ior - 1)/(ior + 1))**2; default 1.5 gives 0.04);
+* ``KHR_materials_specular`` ``specularFactor`` (scales the dielectric Fresnel: f0 x s,
+  f90 = s; 0 gives a pure Lambertian surface); ``specularColorFactor`` is not applied yet;
+* ``alphaMode`` / ``alphaCutoff`` and ``doubleSided``.
+
+Back faces: glTF leaves single-sided back faces to rasteriser culling.  The path tracer never
+lets light leak through a surface; a back face of a single-sided material is shaded like its
+front (normals flipped towards the viewer) so that models with a few wrongly wound triangles
+do not show black holes, but it does **not emit**: a single-sided emissive triangle is a one-sided
+light (front side only), a double-sided one emits from both sides.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..errors import RenderError
+from ..geometry.scene import Material, Scene
+from .textures import AtlasBuilder, TextureAtlas, transform_matrix
+
+N_COLUMNS = 64
+ALPHA_MODES = {"OPAQUE": 0, "MASK": 1, "BLEND": 2}
+SLOT_BASE_COLOUR = 16
+SLOT_METALLIC_ROUGHNESS = 24
+SLOT_EMISSIVE = 32
+SLOT_NORMAL = 40
+
+
+def _slot(row: np.ndarray, col: int, builder: AtlasBuilder, ref, srgb: bool) -> None:
+    row[col] = builder.entry(ref, srgb)
+    row[col + 1] = 0 if ref is None else ref.tex_coord
+    row[col + 2 : col + 8] = transform_matrix(ref)
+
+
+def material_ior(material: Material) -> float:
+    ext = (material.extensions or {}).get("KHR_materials_ior") or {}
+    ior = float(ext.get("ior", 1.5))
+    return ior
+
+
+def material_specular(material: Material) -> float:
+    ext = (material.extensions or {}).get("KHR_materials_specular") or {}
+    return float(ext.get("specularFactor", 1.0))
+
+
+def pack_material(material: Material, builder: AtlasBuilder, where: str) -> np.ndarray:
+    """One ``(64,) float32`` row of the material table."""
+    row = np.zeros(N_COLUMNS, np.float32)
+    row[0] = 0  # MATERIAL_METAL_ROUGH
+    bc = tuple(material.base_colour_factor)
+    if len(bc) != 4:
+        raise RenderError(f"{where}: baseColorFactor needs 4 numbers, got {bc!r}")
+    row[1:5] = bc
+    row[5] = material.metallic_factor
+    row[6] = material.roughness_factor
+    em = np.asarray(material.emissive_factor, np.float64) * float(material.emissive_strength)
+    if em.shape != (3,) or not np.all(np.isfinite(em)) or np.any(em < 0):
+        raise RenderError(f"{where}: emissive factor x strength must be 3 finite numbers >= 0, got {em!r}")
+    row[7:10] = em
+    if material.alpha_mode not in ALPHA_MODES:
+        raise RenderError(
+            f"{where}: alphaMode {material.alpha_mode!r} is not accepted ({', '.join(ALPHA_MODES)})"
+        )
+    row[10] = ALPHA_MODES[material.alpha_mode]
+    row[11] = material.alpha_cutoff
+    row[12] = 1.0 if material.double_sided else 0.0
+    ior = material_ior(material)
+    if not ior >= 1.0:
+        raise RenderError(f"{where}: KHR_materials_ior ior {ior!r} is not accepted (a number >= 1)")
+    row[13] = ior
+    row[14] = 1.0 if material.normal_texture is None else material.normal_texture.scale
+    row[15] = material_specular(material)
+    _slot(row, SLOT_BASE_COLOUR, builder, material.base_colour_texture, True)
+    _slot(row, SLOT_METALLIC_ROUGHNESS, builder, material.metallic_roughness_texture, False)
+    _slot(row, SLOT_EMISSIVE, builder, material.emissive_texture, True)
+    row[SLOT_NORMAL] = -1  # normal maps are reserved, not applied yet
+    row[SLOT_NORMAL + 1] = 0
+    row[SLOT_NORMAL + 2 : SLOT_NORMAL + 8] = transform_matrix(None)
+    return row
+
+
+def pack_materials(scene: Scene) -> tuple[np.ndarray, TextureAtlas]:
+    """The ``(M, 64) float32`` material table and the texture atlas of a scene."""
+    builder = AtlasBuilder(scene.textures, scene.source)
+    materials = scene.materials or [Material(name="default")]
+    rows = [
+        pack_material(m, builder, f"{scene.source} -> material {i} ({m.name!r})") for i, m in enumerate(materials)
+    ]
+    table = np.ascontiguousarray(np.stack(rows, axis=0), dtype=np.float32)
+    return table, builder.build()
+
+
+def eval_brdf(material_row, wo, wi, base_colour=None, metallic=None, roughness=None) -> np.ndarray:
+    """f(wo, wi) ``(N, 3) float64`` of a packed material (factors only), local frame n = +z (tests)."""
+    from . import bsdf_kernels
+
+    params = resolve_params(material_row, base_colour, metallic, roughness)
+    wo = np.ascontiguousarray(wo, dtype=np.float64).reshape(-1, 3)
+    wi = np.ascontiguousarray(wi, dtype=np.float64).reshape(-1, 3)
+    out = np.zeros((wo.shape[0], 3), np.float64)
+    bsdf_kernels.eval_f_batch(params, wo, wi, out)
+    return out
+
+
+def resolve_params(material_row, base_colour=None, metallic=None, roughness=None) -> np.ndarray:
+    """The resolved ``(8,) float64`` BSDF record of ``bsdf_kernels`` for a packed material row."""
+    row = np.asarray(material_row, np.float64)
+    bc = row[1:4] if base_colour is None else np.asarray(base_colour, np.float64)
+    m = row[5] if metallic is None else float(metallic)
+    r = row[6] if roughness is None else float(roughness)
+    from .bsdf_kernels import make_bsdf
+
+    ior = row[13] if row[13] > 0 else 1.5
+    return np.array(make_bsdf(row[0], bc[0], bc[1], bc[2], m, r, ior, row[15]), np.float64)

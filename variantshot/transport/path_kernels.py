@@ -1,0 +1,443 @@
+"""The path tracer: unbiased path tracing with NEE, MIS and Russian roulette, over image rows.
+
+Estimator (per camera sample)
+-----------------------------
+At every surface vertex the path adds
+
+* emission hit by the path, weighted by the power heuristic against the light-sampling density
+  of that point (camera rays and ``mode = baseline`` count emission with weight 1);
+* one light sample (next-event estimation): a light entry chosen by ``sel_cdf`` (environment,
+  the emissive-triangle group, each punctual light; rule in ``lights.py``), a point on it, a
+  shadow ray; area densities are turned into solid angle by d^2 / |cos theta_light|; weighted
+  by the power heuristic against ``pdf_f``; punctual lights are delta lights (weight 1);
+* then continues by sampling the BSDF.  After three bounces Russian roulette ends the path
+  with probability 1 - min(1, max(throughput)) and divides survivors by the survival
+  probability.  ``max_depth`` is only a safety net.
+
+Geometry conventions: the geometric normal is turned towards the incoming ray; the shading
+normal (interpolated vertex normals) is turned to the same side.  Rays leave a surface from
+a point offset along the geometric normal by ``eps`` (scale-aware, ``fopts[0]``).  Back faces
+of single-sided materials are shaded like fronts but do not emit (see ``materials.py``).
+
+Alpha: MASK passes rays where alpha < cutoff; BLEND passes a ray with probability 1 - alpha
+(stochastic transparency); shadow rays through BLEND surfaces are attenuated by 1 - alpha.
+
+Sample dimensions: 0-1 filter, 2-3 lens, then per bounce ``b`` the block 4 + 16 b:
++0 light entry, +1 triangle, +2..3 point on the light, +4 lobe, +5..6 BSDF direction,
++7 roulette; alpha pass-through uses 1 << 20 + 64 b + k.
+
+Packed integer options ``opts`` (int64): 0 width, 1 height, 2 first sample, 3 end sample,
+4 seed, 5 max depth, 6 mode (0 full, 1 baseline), 7 has environment, 8 has non-opaque
+materials.  Float options ``fopts`` (float64): 0 ray offset eps, 1 filter radius (pixels).
+"""
+
+from __future__ import annotations
+
+from .. import _jit  # noqa: F401
+from .._jit import KERNEL as _KERNEL_PRESET, PARALLEL as _PARALLEL_PRESET, njit, prange
+
+import math
+
+from ..geometry.bvh_kernels import any_hit, closest_hit
+from .bsdf_kernels import eval_f, make_bsdf, pdf_f, sample_f
+from .camera_kernels import generate_ray
+from .env_kernels import env_pdf, env_radiance, env_sample
+from .light_kernels import sample_emissive_point, sample_punctual, triangle_geometry
+from .sampling_kernels import (
+    onb_from_normal,
+    power_heuristic,
+    sample_discrete,
+    sample_state,
+    sample_tent,
+    uniform_from_state,
+)
+from .texture_kernels import sample_slot
+
+KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
+PARALLEL = dict(_PARALLEL_PRESET, fastmath=set(_PARALLEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
+
+
+@njit(**KERNEL)
+def surface_attributes(positions, normals, uvs, colours, triangles, tri, b1, b2):
+    """Interpolated point, shading normal, UV sets and vertex colour at barycentrics (b1, b2)."""
+    b0 = 1.0 - b1 - b2
+    i0 = triangles[tri, 0]
+    i1 = triangles[tri, 1]
+    i2 = triangles[tri, 2]
+    px = b0 * positions[i0, 0] + b1 * positions[i1, 0] + b2 * positions[i2, 0]
+    py = b0 * positions[i0, 1] + b1 * positions[i1, 1] + b2 * positions[i2, 1]
+    pz = b0 * positions[i0, 2] + b1 * positions[i1, 2] + b2 * positions[i2, 2]
+    nx = b0 * normals[i0, 0] + b1 * normals[i1, 0] + b2 * normals[i2, 0]
+    ny = b0 * normals[i0, 1] + b1 * normals[i1, 1] + b2 * normals[i2, 1]
+    nz = b0 * normals[i0, 2] + b1 * normals[i1, 2] + b2 * normals[i2, 2]
+    u0 = b0 * uvs[i0, 0, 0] + b1 * uvs[i1, 0, 0] + b2 * uvs[i2, 0, 0]
+    v0 = b0 * uvs[i0, 0, 1] + b1 * uvs[i1, 0, 1] + b2 * uvs[i2, 0, 1]
+    u1 = b0 * uvs[i0, 1, 0] + b1 * uvs[i1, 1, 0] + b2 * uvs[i2, 1, 0]
+    v1 = b0 * uvs[i0, 1, 1] + b1 * uvs[i1, 1, 1] + b2 * uvs[i2, 1, 1]
+    cr = b0 * colours[i0, 0] + b1 * colours[i1, 0] + b2 * colours[i2, 0]
+    cg = b0 * colours[i0, 1] + b1 * colours[i1, 1] + b2 * colours[i2, 1]
+    cb = b0 * colours[i0, 2] + b1 * colours[i1, 2] + b2 * colours[i2, 2]
+    ca = b0 * colours[i0, 3] + b1 * colours[i1, 3] + b2 * colours[i2, 3]
+    return (float(px), float(py), float(pz), float(nx), float(ny), float(nz),
+            float(u0), float(v0), float(u1), float(v1), float(cr), float(cg), float(cb), float(ca))
+
+
+@njit(**KERNEL)
+def surface_alpha(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1, ca):
+    """glTF alpha: baseColorFactor.a x baseColorTexture.a x COLOR_0.a."""
+    a = sample_slot(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1)[3]
+    return float(mat_table[mat, 4]) * a * ca
+
+
+@njit(**KERNEL)
+def emission(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1):
+    """Emitted radiance (RGB): emissiveFactor x strength x emissiveTexture."""
+    er = float(mat_table[mat, 7])
+    eg = float(mat_table[mat, 8])
+    eb = float(mat_table[mat, 9])
+    if er <= 0.0 and eg <= 0.0 and eb <= 0.0:
+        return 0.0, 0.0, 0.0
+    tr, tg, tb, ta = sample_slot(mat_table, mat, 32, tex_pixels, tex_table, u0, v0, u1, v1)
+    return er * tr, eg * tg, eb * tb
+
+
+@njit(**KERNEL)
+def shadow_transmittance(nodes_f, nodes_i, tris_f, tri_ids, positions, normals, uvs, colours, triangles,
+                         tri_material, mat_table, tex_pixels, tex_table, has_alpha,
+                         ox, oy, oz, dx, dy, dz, tmax, eps):
+    """Fraction of light passing from o along d up to tmax (0 or 1 without alpha materials)."""
+    if has_alpha == 0:
+        if any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, 0.0, tmax):
+            return 0.0
+        return 1.0
+    trans = 1.0
+    t_done = 0.0
+    for _ in range(256):
+        t, tri, b1, b2 = closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, 0.0, tmax - t_done)
+        if tri < 0:
+            return trans
+        mat = tri_material[tri]
+        mode = int(mat_table[mat, 10])
+        if mode == 0:
+            return 0.0
+        a = surface_attributes(positions, normals, uvs, colours, triangles, tri, b1, b2)
+        alpha = surface_alpha(mat_table, mat, tex_pixels, tex_table, a[6], a[7], a[8], a[9], a[13])
+        if mode == 1:
+            if alpha >= mat_table[mat, 11]:
+                return 0.0
+        else:
+            trans *= max(0.0, 1.0 - alpha)
+            if trans <= 0.0:
+                return 0.0
+        step = float(t) + eps
+        ox += dx * step
+        oy += dy * step
+        oz += dz * step
+        t_done += step
+        if t_done >= tmax:
+            return trans
+    return 0.0
+
+
+@njit(**KERNEL)
+def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
+                 nodes_f, nodes_i, tris_f, tri_ids,
+                 mat_table, tex_pixels, tex_table,
+                 punctual, emit_tris, emit_cdf, tri_emit_prob, sel_cdf,
+                 env_pixels, env_cdf_rows, env_cdf_cols, env_params,
+                 cam, opts, fopts, px_x, px_y, state):
+    """One camera sample through pixel (px_x, px_y).
+
+    Returns (r, g, b, albedo r, g, b, normal x, y, z, coverage, depth) where depth is -1 when
+    the camera ray reached no surface.
+    """
+    max_depth = opts[5]
+    baseline = opts[6] == 1
+    has_env = opts[7] == 1
+    has_alpha = opts[8]
+    eps = fopts[0]
+    radius = fopts[1]
+    sel_total = sel_cdf[sel_cdf.shape[0] - 1]
+    p_env_sel = (sel_cdf[1] - sel_cdf[0]) / sel_total if sel_total > 0.0 else 0.0
+    p_emit_sel = (sel_cdf[2] - sel_cdf[1]) / sel_total if sel_total > 0.0 else 0.0
+
+    fx = px_x + 0.5 + sample_tent(uniform_from_state(state, 0), radius)
+    fy = px_y + 0.5 + sample_tent(uniform_from_state(state, 1), radius)
+    ox, oy, oz, dx, dy, dz = generate_ray(cam, fx, fy, uniform_from_state(state, 2), uniform_from_state(state, 3))
+
+    lr = 0.0
+    lg = 0.0
+    lb = 0.0
+    beta_r = 1.0
+    beta_g = 1.0
+    beta_b = 1.0
+    alb_r = 0.0
+    alb_g = 0.0
+    alb_b = 0.0
+    nrm_x = 0.0
+    nrm_y = 0.0
+    nrm_z = 0.0
+    coverage = 0.0
+    depth_out = -1.0
+    t_primary = 0.0
+    prev_pdf = 0.0
+    depth = 0
+    passes = 0
+    while True:
+        t, tri, b1, b2 = closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, 0.0, math.inf)
+        if tri < 0:
+            if has_env:
+                er, eg, eb = env_radiance(env_pixels, env_params, dx, dy, dz)
+                w = 1.0
+                if depth > 0 and not baseline:
+                    pl = p_env_sel * env_pdf(env_pixels, env_cdf_rows, env_cdf_cols, env_params, dx, dy, dz)
+                    w = power_heuristic(prev_pdf, pl)
+                lr += beta_r * er * w
+                lg += beta_g * eg * w
+                lb += beta_b * eb * w
+            break
+        t = float(t)
+        mat = tri_material[tri]
+        (px, py, pz, snx, sny, snz, u0, v0, u1, v1, cr, cg, cb, ca) = surface_attributes(
+            positions, normals, uvs, colours, triangles, tri, b1, b2)
+        area, ngx, ngy, ngz = triangle_geometry(positions, triangles, tri)
+        front = (ngx * dx + ngy * dy + ngz * dz) < 0.0
+        if not front:
+            ngx = -ngx
+            ngy = -ngy
+            ngz = -ngz
+        alpha_mode = int(mat_table[mat, 10])
+        if alpha_mode != 0:
+            alpha = surface_alpha(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1, ca)
+            passing = False
+            if alpha_mode == 1:
+                passing = alpha < mat_table[mat, 11]
+            else:
+                passing = uniform_from_state(state, (1 << 20) + 64 * depth + min(passes, 63)) >= alpha
+            if passing and passes < 1024:
+                passes += 1
+                if depth == 0:
+                    t_primary += t
+                ox = px - ngx * eps
+                oy = py - ngy * eps
+                oz = pz - ngz * eps
+                continue
+        double_sided = mat_table[mat, 12] > 0.5
+        # shading normal on the viewer's side of the geometric normal
+        sl = math.sqrt(snx * snx + sny * sny + snz * snz)
+        if sl > 0.0:
+            snx /= sl
+            sny /= sl
+            snz /= sl
+        else:
+            snx = ngx
+            sny = ngy
+            snz = ngz
+        if snx * ngx + sny * ngy + snz * ngz < 0.0:
+            snx = -snx
+            sny = -sny
+            snz = -snz
+        wox = -dx
+        woy = -dy
+        woz = -dz
+        if snx * wox + sny * woy + snz * woz <= 0.0:
+            # interpolated normal faces away from the viewer (silhouette): use the true normal
+            snx = ngx
+            sny = ngy
+            snz = ngz
+        bt = sample_slot(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1)
+        base_r = float(mat_table[mat, 1]) * bt[0] * cr
+        base_g = float(mat_table[mat, 2]) * bt[1] * cg
+        base_b = float(mat_table[mat, 3]) * bt[2] * cb
+        if depth == 0:
+            alb_r = base_r
+            alb_g = base_g
+            alb_b = base_b
+            nrm_x = snx
+            nrm_y = sny
+            nrm_z = snz
+            coverage = 1.0
+            depth_out = t_primary + t
+        # emission reached by the path
+        if front or double_sided:
+            er, eg, eb = emission(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1)
+            if er > 0.0 or eg > 0.0 or eb > 0.0:
+                w = 1.0
+                if depth > 0 and not baseline:
+                    cos_l = abs(ngx * dx + ngy * dy + ngz * dz)
+                    pl = 0.0
+                    if cos_l > 0.0 and area > 0.0:
+                        pl = p_emit_sel * tri_emit_prob[tri] * t * t / (area * cos_l)
+                    w = power_heuristic(prev_pdf, pl)
+                lr += beta_r * er * w
+                lg += beta_g * eg * w
+                lb += beta_b * eb * w
+        if depth + 1 >= max_depth:
+            break
+        mr = sample_slot(mat_table, mat, 24, tex_pixels, tex_table, u0, v0, u1, v1)
+        metallic = float(mat_table[mat, 5]) * mr[2]
+        roughness = float(mat_table[mat, 6]) * mr[1]
+        bsdf = make_bsdf(float(mat_table[mat, 0]), base_r, base_g, base_b, metallic, roughness,
+                         float(mat_table[mat, 13]), float(mat_table[mat, 15]))
+        tx, ty, tz, bx, by, bz = onb_from_normal(snx, sny, snz)
+        wlx = wox * tx + woy * ty + woz * tz
+        wly = wox * bx + woy * by + woz * bz
+        wlz = wox * snx + woy * sny + woz * snz
+        ox_s = px + ngx * eps
+        oy_s = py + ngy * eps
+        oz_s = pz + ngz * eps
+        dim = 4 + 16 * depth
+        # next-event estimation
+        if not baseline and sel_total > 0.0:
+            entry = sample_discrete(sel_cdf, uniform_from_state(state, dim))
+            p_sel = (sel_cdf[entry + 1] - sel_cdf[entry]) / sel_total
+            ok = False
+            delta = False
+            wix = 0.0
+            wiy = 0.0
+            wiz = 1.0
+            dist = math.inf
+            li_r = 0.0
+            li_g = 0.0
+            li_b = 0.0
+            pdf_light = 0.0
+            if entry == 0:
+                wix, wiy, wiz, pdf_env, li_r, li_g, li_b = env_sample(
+                    env_pixels, env_cdf_rows, env_cdf_cols, env_params,
+                    uniform_from_state(state, dim + 2), uniform_from_state(state, dim + 3))
+                pdf_light = p_sel * pdf_env
+                ok = pdf_light > 0.0
+            elif entry == 1:
+                ltri, lb1, lb2, qx, qy, qz, prob_tri, larea = sample_emissive_point(
+                    positions, triangles, emit_tris, emit_cdf, uniform_from_state(state, dim + 1),
+                    uniform_from_state(state, dim + 2), uniform_from_state(state, dim + 3))
+                lmat = tri_material[ltri]
+                lnx, lny, lnz = triangle_geometry(positions, triangles, ltri)[1:]
+                wx = qx - px
+                wy = qy - py
+                wz = qz - pz
+                d2 = wx * wx + wy * wy + wz * wz
+                if d2 > 0.0 and larea > 0.0:
+                    dist = math.sqrt(d2)
+                    wix = wx / dist
+                    wiy = wy / dist
+                    wiz = wz / dist
+                    cos_l = -(lnx * wix + lny * wiy + lnz * wiz)
+                    if cos_l > 0.0 or (mat_table[lmat, 12] > 0.5 and cos_l < 0.0):
+                        la = surface_attributes(positions, normals, uvs, colours, triangles, ltri, lb1, lb2)
+                        li_r, li_g, li_b = emission(mat_table, lmat, tex_pixels, tex_table, la[6], la[7], la[8], la[9])
+                        pdf_light = p_sel * prob_tri * d2 / (larea * abs(cos_l))
+                        ok = pdf_light > 0.0
+                        # stop the shadow ray just short of the emitter
+                        dist = dist * (1.0 - 1e-5) - eps
+            else:
+                wix, wiy, wiz, dist, li_r, li_g, li_b = sample_punctual(punctual, entry - 2, px, py, pz)
+                delta = True
+                pdf_light = p_sel
+                ok = pdf_light > 0.0 and (li_r > 0.0 or li_g > 0.0 or li_b > 0.0)
+                if dist < math.inf:
+                    dist = dist - eps
+            if ok and (wix * ngx + wiy * ngy + wiz * ngz) > 0.0 and dist > 0.0:
+                ilx = wix * tx + wiy * ty + wiz * tz
+                ily = wix * bx + wiy * by + wiz * bz
+                ilz = wix * snx + wiy * sny + wiz * snz
+                fr, fg, fb = eval_f(bsdf, wlx, wly, wlz, ilx, ily, ilz)
+                if fr > 0.0 or fg > 0.0 or fb > 0.0:
+                    vis = shadow_transmittance(nodes_f, nodes_i, tris_f, tri_ids, positions, normals, uvs,
+                                               colours, triangles, tri_material, mat_table, tex_pixels,
+                                               tex_table, has_alpha, ox_s, oy_s, oz_s, wix, wiy, wiz, dist, eps)
+                    if vis > 0.0:
+                        if delta:
+                            k = ilz * vis / pdf_light
+                        else:
+                            w = power_heuristic(pdf_light, pdf_f(bsdf, wlx, wly, wlz, ilx, ily, ilz))
+                            k = ilz * vis * w / pdf_light
+                        lr += beta_r * fr * li_r * k
+                        lg += beta_g * fg * li_g * k
+                        lb += beta_b * fb * li_b * k
+        # continue the path by sampling the BSDF
+        ilx, ily, ilz, fr, fg, fb, pdf = sample_f(bsdf, wlx, wly, wlz, uniform_from_state(state, dim + 4),
+                                                  uniform_from_state(state, dim + 5),
+                                                  uniform_from_state(state, dim + 6))
+        if pdf <= 0.0:
+            break
+        nx_ = ilx * tx + ily * bx + ilz * snx
+        ny_ = ilx * ty + ily * by + ilz * sny
+        nz_ = ilx * tz + ily * bz + ilz * snz
+        if nx_ * ngx + ny_ * ngy + nz_ * ngz <= 0.0:
+            break
+        k = ilz / pdf
+        beta_r *= fr * k
+        beta_g *= fg * k
+        beta_b *= fb * k
+        if beta_r <= 0.0 and beta_g <= 0.0 and beta_b <= 0.0:
+            break
+        prev_pdf = pdf
+        depth += 1
+        if depth >= 3:
+            q = min(1.0, max(beta_r, max(beta_g, beta_b)))
+            if q < 1.0:
+                if uniform_from_state(state, dim + 7) >= q:
+                    break
+                beta_r /= q
+                beta_g /= q
+                beta_b /= q
+        ox = ox_s
+        oy = oy_s
+        oz = oz_s
+        dx = nx_
+        dy = ny_
+        dz = nz_
+    if not (math.isfinite(lr) and math.isfinite(lg) and math.isfinite(lb)):
+        lr = 0.0
+        lg = 0.0
+        lb = 0.0
+    return lr, lg, lb, alb_r, alb_g, alb_b, nrm_x, nrm_y, nrm_z, coverage, depth_out
+
+
+@njit(**PARALLEL)
+def render_rows(positions, normals, uvs, colours, triangles, tri_material,
+                nodes_f, nodes_i, tris_f, tri_ids,
+                mat_table, tex_pixels, tex_table,
+                punctual, emit_tris, emit_cdf, tri_emit_prob, sel_cdf,
+                env_pixels, env_cdf_rows, env_cdf_cols, env_params,
+                cam, opts, fopts,
+                sum_rgb, sum_sq, sum_albedo, sum_normal, sum_alpha, sum_depth, n_depth):
+    """Add samples ``opts[2] .. opts[3]-1`` of every pixel to the film sums.
+
+    Sums are (H, W, 3) / (H, W) float64, updated in place; iteration ``y`` (prange over rows)
+    writes only row ``y``, samples in increasing order, so the result does not depend on the
+    thread count.
+    """
+    width = opts[0]
+    height = opts[1]
+    s0 = opts[2]
+    s1 = opts[3]
+    seed = opts[4]
+    for y in prange(height):
+        for x in range(width):
+            pixel = y * width + x
+            for s in range(s0, s1):
+                state = sample_state(pixel, s, seed)
+                r = trace_sample(positions, normals, uvs, colours, triangles, tri_material,
+                                 nodes_f, nodes_i, tris_f, tri_ids,
+                                 mat_table, tex_pixels, tex_table,
+                                 punctual, emit_tris, emit_cdf, tri_emit_prob, sel_cdf,
+                                 env_pixels, env_cdf_rows, env_cdf_cols, env_params,
+                                 cam, opts, fopts, x, y, state)
+                sum_rgb[y, x, 0] += r[0]
+                sum_rgb[y, x, 1] += r[1]
+                sum_rgb[y, x, 2] += r[2]
+                sum_sq[y, x, 0] += r[0] * r[0]
+                sum_sq[y, x, 1] += r[1] * r[1]
+                sum_sq[y, x, 2] += r[2] * r[2]
+                sum_albedo[y, x, 0] += r[3]
+                sum_albedo[y, x, 1] += r[4]
+                sum_albedo[y, x, 2] += r[5]
+                sum_normal[y, x, 0] += r[6]
+                sum_normal[y, x, 1] += r[7]
+                sum_normal[y, x, 2] += r[8]
+                sum_alpha[y, x] += r[9]
+                if r[10] >= 0.0:
+                    sum_depth[y, x] += r[10]
+                    n_depth[y, x] += 1.0
