@@ -53,8 +53,10 @@ from numba.extending import intrinsic
 # numba accepts fastmath as a bool, dict or *set* (not frozenset), so pass a set copy.
 KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))
 PARALLEL = dict(_PARALLEL_PRESET, fastmath=set(_PARALLEL_PRESET["fastmath"]))
-# The triangle test runs without fast-math (no contraction or reassociation): see module doc.
-_EXACT = dict(KERNEL, fastmath=False)
+# Small helpers are inlined at numba-IR level: LLVM does not inline across numba functions,
+# and a call per node or triangle (with reference counting of the array arguments) costs more
+# than the work it does.
+INLINE = dict(KERNEL, inline="always")
 
 if numba.config.DISABLE_JIT:
 
@@ -86,11 +88,11 @@ else:
 
         return sig, codegen
 
-    @njit(**KERNEL)
+    @njit(**INLINE)
     def _stack_refs():
         return numba.carray(_alloca_i32_256(), 256)
 
-    @njit(**KERNEL)
+    @njit(**INLINE)
     def _stack_dists():
         return numba.carray(_alloca_f32_256(), 256)
 
@@ -100,7 +102,7 @@ else:
 # --------------------------------------------------------------------------------------------
 
 
-@njit(**KERNEL)
+@njit(**INLINE)
 def _pick(a, b, c, k):
     if k == 0:
         return a
@@ -109,7 +111,7 @@ def _pick(a, b, c, k):
     return c
 
 
-@njit(**_EXACT)
+@njit(**INLINE)
 def _shear_setup(dx, dy, dz):
     """Axis permutation and shear of Woop et al. (2013) for direction d.
 
@@ -143,7 +145,7 @@ def _shear_setup(dx, dy, dz):
     return True, kx, ky, kz, np.float32(sx), np.float32(sy), np.float32(sz)
 
 
-@njit(**_EXACT)
+@njit(**INLINE)
 def _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz):
     """Watertight test of leaf-order triangle i; returns (hit, t, b1, b2) in float64.
 
@@ -184,7 +186,7 @@ def _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz):
     return True, t_scaled * inv_det, v * inv_det, w * inv_det
 
 
-@njit(**KERNEL)
+@njit(**INLINE)
 def _inv_dir(d):
     """1/d for the slab test, with |d| clamped away from 0 so no 0 * inf NaN can arise."""
     if abs(d) < 1e-30:
@@ -197,7 +199,107 @@ def _inv_dir(d):
 # --------------------------------------------------------------------------------------------
 
 
-@njit(**KERNEL)
+@njit(**INLINE)
+def _node_test_scalar(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi):
+    """Slab test of the 4 child boxes of inner node ``ref`` (straight-line, one lane per child).
+
+    Returns (tn0, tn1, tn2, tn3, mask): entry distances and a 4-bit mask of the children hit.
+    """
+    b = 24 * ref
+    fx = b + 4 - nx
+    fy = b + 20 - ny
+    fz = b + 36 - nz
+    nx = b + nx
+    ny = b + ny
+    nz = b + nz
+    robust = np.float32(1.0000004)  # 1 + 2 gamma(3) in float32 (Ize 2013)
+    n0 = max(max((nodes_f[nx] - ox) * ivx, (nodes_f[ny] - oy) * ivy), max((nodes_f[nz] - oz) * ivz, t_lo))
+    n1 = max(max((nodes_f[nx + 1] - ox) * ivx, (nodes_f[ny + 1] - oy) * ivy),
+             max((nodes_f[nz + 1] - oz) * ivz, t_lo))
+    n2 = max(max((nodes_f[nx + 2] - ox) * ivx, (nodes_f[ny + 2] - oy) * ivy),
+             max((nodes_f[nz + 2] - oz) * ivz, t_lo))
+    n3 = max(max((nodes_f[nx + 3] - ox) * ivx, (nodes_f[ny + 3] - oy) * ivy),
+             max((nodes_f[nz + 3] - oz) * ivz, t_lo))
+    f0 = min(min(min((nodes_f[fx] - ox) * ivx, (nodes_f[fy] - oy) * ivy), (nodes_f[fz] - oz) * ivz) * robust, t_hi)
+    f1 = min(min(min((nodes_f[fx + 1] - ox) * ivx, (nodes_f[fy + 1] - oy) * ivy),
+                 (nodes_f[fz + 1] - oz) * ivz) * robust, t_hi)
+    f2 = min(min(min((nodes_f[fx + 2] - ox) * ivx, (nodes_f[fy + 2] - oy) * ivy),
+                 (nodes_f[fz + 2] - oz) * ivz) * robust, t_hi)
+    f3 = min(min(min((nodes_f[fx + 3] - ox) * ivx, (nodes_f[fy + 3] - oy) * ivy),
+                 (nodes_f[fz + 3] - oz) * ivz) * robust, t_hi)
+    mask = (1 if n0 <= f0 else 0) | (2 if n1 <= f1 else 0) | (4 if n2 <= f2 else 0) | (8 if n3 <= f3 else 0)
+    return n0, n1, n2, n3, mask
+
+
+if numba.config.DISABLE_JIT:
+    _node_test = _node_test_scalar
+else:
+
+    @intrinsic
+    def _node_test(typingctx, nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi):
+        """:func:`_node_test_scalar` as one 4-lane LLVM vector computation.
+
+        numba does not run LLVM's SLP vectorizer, so the four child slabs are written as
+        explicit <4 x float> operations: six vector loads, and a sub, mul, max/min per plane.
+        """
+        f32 = types.float32
+        sig = types.Tuple((f32, f32, f32, f32, types.int64))(
+            nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi
+        )
+
+        def codegen(context, builder, signature, args):
+            ir = cgutils.ir
+            i32 = ir.IntType(32)
+            i64 = ir.IntType(64)
+            vty = ir.VectorType(ir.FloatType(), 4)
+            arr = context.make_array(signature.args[0])(context, builder, args[0])
+            ints = [context.cast(builder, args[k], signature.args[k], types.int64) for k in range(1, 5)]
+            flts = [context.cast(builder, args[k], signature.args[k], f32) for k in range(5, 13)]
+            r_ref, r_nx, r_ny, r_nz = ints
+            r_ox, r_oy, r_oz, r_ivx, r_ivy, r_ivz, r_lo, r_hi = flts
+            base = builder.mul(r_ref, ir.Constant(i64, 24))
+            zeros = ir.Constant(ir.VectorType(i32, 4), [0, 0, 0, 0])
+
+            def splat(x):
+                v = builder.insert_element(ir.Constant(vty, None), x, ir.Constant(i32, 0))
+                return builder.shuffle_vector(v, ir.Constant(vty, None), zeros)
+
+            def load(offset):
+                ptr = builder.gep(arr.data, [builder.add(base, offset)])
+                return builder.load(builder.bitcast(ptr, vty.as_pointer()), align=4)
+
+            def slab(offset, o, iv):
+                return builder.fmul(builder.fsub(load(offset), o), iv)
+
+            def vmax(a, b):
+                return builder.select(builder.fcmp_ordered(">", a, b), a, b)
+
+            def vmin(a, b):
+                return builder.select(builder.fcmp_ordered("<", a, b), a, b)
+
+            o_x, o_y, o_z = splat(r_ox), splat(r_oy), splat(r_oz)
+            i_x, i_y, i_z = splat(r_ivx), splat(r_ivy), splat(r_ivz)
+            c4 = ir.Constant(i64, 4)
+            c20 = ir.Constant(i64, 20)
+            c36 = ir.Constant(i64, 36)
+            tn = vmax(
+                vmax(slab(r_nx, o_x, i_x), slab(r_ny, o_y, i_y)),
+                vmax(slab(r_nz, o_z, i_z), splat(r_lo)),
+            )
+            tf = vmin(
+                vmin(slab(builder.sub(c4, r_nx), o_x, i_x), slab(builder.sub(c20, r_ny), o_y, i_y)),
+                slab(builder.sub(c36, r_nz), o_z, i_z),
+            )
+            tf = vmin(builder.fmul(tf, splat(ir.Constant(ir.FloatType(), 1.0000004))), splat(r_hi))
+            hit = builder.fcmp_ordered("<=", tn, tf)
+            mask = builder.zext(builder.bitcast(hit, ir.IntType(4)), i64)
+            lanes = [builder.extract_element(tn, ir.Constant(i32, k)) for k in range(4)]
+            return context.make_tuple(builder, signature.return_type, lanes + [mask])
+
+        return sig, codegen
+
+
+@njit(**INLINE)
 def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
     """Closest intersection of one ray with the BVH (both faces count).
 
@@ -222,7 +324,8 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
     Notes
     -----
     No heap allocation: the traversal stack lives on the machine stack.  Safe to call from
-    any thread.  Children are visited nearest first and the far limit shrinks with each hit.
+    any thread.  Children are visited nearest first and the far limit shrinks with each hit;
+    stacked subtrees whose entry distance lies beyond the closest hit are skipped.
     """
     ox = np.float32(ox)
     oy = np.float32(oy)
@@ -235,72 +338,74 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
     b1_best = np.float32(0.0)
     b2_best = np.float32(0.0)
     ok, kx, ky, kz, sx, sy, sz = _shear_setup(dx, dy, dz)
-    if not ok or not (tmax > tmin):
-        return t_best, tri_best, b1_best, b2_best
-    okx = _pick(ox, oy, oz, kx)
-    oky = _pick(ox, oy, oz, ky)
-    okz = _pick(ox, oy, oz, kz)
-    ivx = _inv_dir(dx)
-    ivy = _inv_dir(dy)
-    ivz = _inv_dir(dz)
-    nx = 0 if ivx >= 0.0 else 4
-    ny = 8 if ivy >= 0.0 else 12
-    nz = 16 if ivz >= 0.0 else 20
-    fx = 4 - nx
-    fy = 20 - ny
-    fz = 36 - nz
-    t_lo = np.float32(tmin)
-    t_hi = np.float32(tmax)  # shrinks to the closest hit so far
-    robust = np.float32(1.0000004)  # 1 + 2 gamma(3), float32
+    if not (tmax > tmin):
+        ok = False
+    if ok:
+        okx = _pick(ox, oy, oz, kx)
+        oky = _pick(ox, oy, oz, ky)
+        okz = _pick(ox, oy, oz, kz)
+        ivx = _inv_dir(dx)
+        ivy = _inv_dir(dy)
+        ivz = _inv_dir(dz)
+        nx = 0 if ivx >= 0.0 else 4
+        ny = 8 if ivy >= 0.0 else 12
+        nz = 16 if ivz >= 0.0 else 20
+        t_lo = np.float32(tmin)
+        t_hi = np.float32(tmax)  # shrinks to the closest hit so far
 
-    stack_ref = _stack_refs()
-    stack_t = _stack_dists()
-    stack_ref[0] = 0
-    stack_t[0] = t_lo
-    sp = 1
-    while sp > 0:
-        sp -= 1
-        ref = stack_ref[sp]
-        if stack_t[sp] > t_hi:
-            continue
-        if ref >= 0:
-            base = 24 * ref
-            first = sp
-            for c in range(4):
-                t0 = (nodes_f[base + nx + c] - ox) * ivx
-                t1 = (nodes_f[base + fx + c] - ox) * ivx
-                t2 = (nodes_f[base + ny + c] - oy) * ivy
-                t3 = (nodes_f[base + fy + c] - oy) * ivy
-                t4 = (nodes_f[base + nz + c] - oz) * ivz
-                t5 = (nodes_f[base + fz + c] - oz) * ivz
-                tn = max(max(t0, t2), max(t4, t_lo))
-                tf = min(min(min(t1, t3), t5) * robust, t_hi)
-                if tn <= tf:
-                    # insertion keeping the new entries sorted far-to-near (nearest on top)
-                    j = sp
-                    while j > first and stack_t[j - 1] < tn:
-                        stack_ref[j] = stack_ref[j - 1]
-                        stack_t[j] = stack_t[j - 1]
-                        j -= 1
-                    stack_ref[j] = nodes_i[4 * ref + c]
-                    stack_t[j] = tn
-                    sp += 1
-        else:
-            v = ~ref
-            start = v >> 3
-            stop = start + (v & 7)
-            for i in range(start, stop):
-                hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
-                if hit and t > t_lo and t < t_hi:
-                    t_hi = np.float32(t)
-                    t_best = np.float32(t)
-                    tri_best = tri_ids[i]
-                    b1_best = np.float32(b1)
-                    b2_best = np.float32(b2)
+        stack_ref = _stack_refs()
+        stack_t = _stack_dists()
+        sp = 0
+        ref = np.int32(0)
+        while True:
+            if ref >= 0:
+                n0, n1, n2, n3, mask = _node_test(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi)
+                if mask != 0:
+                    c = 4 * ref
+                    first = sp
+                    # push the children hit, kept sorted far-to-near, then continue with the nearest
+                    for k in range(4):
+                        if mask & (1 << k):
+                            tn = n0 if k == 0 else (n1 if k == 1 else (n2 if k == 2 else n3))
+                            j = sp
+                            while j > first and stack_t[j - 1] < tn:
+                                stack_ref[j] = stack_ref[j - 1]
+                                stack_t[j] = stack_t[j - 1]
+                                j -= 1
+                            stack_ref[j] = nodes_i[c + k]
+                            stack_t[j] = tn
+                            sp += 1
+                    sp -= 1
+                    ref = stack_ref[sp]
+                    continue
+            else:
+                v = ~ref
+                start = v >> 3
+                stop = start + (v & 7)
+                for i in range(start, stop):
+                    hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
+                    if hit and t > t_lo and t < t_hi:
+                        t_hi = np.float32(t)
+                        t_best = np.float32(t)
+                        tri_best = i
+                        b1_best = np.float32(b1)
+                        b2_best = np.float32(b2)
+            # pop the nearest stacked subtree that can still hold a closer hit
+            found = False
+            while sp > 0:
+                sp -= 1
+                if stack_t[sp] <= t_hi:
+                    found = True
+                    break
+            if not found:
+                break
+            ref = stack_ref[sp]
+    if tri_best >= 0:
+        tri_best = tri_ids[tri_best]
     return t_best, tri_best, b1_best, b2_best
 
 
-@njit(**KERNEL)
+@njit(**INLINE)
 def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
     """True when the ray hits any triangle with tmin < t < tmax (shadow query, early exit).
 
@@ -313,53 +418,53 @@ def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tma
     dy = np.float32(dy)
     dz = np.float32(dz)
     ok, kx, ky, kz, sx, sy, sz = _shear_setup(dx, dy, dz)
-    if not ok or not (tmax > tmin):
-        return False
-    okx = _pick(ox, oy, oz, kx)
-    oky = _pick(ox, oy, oz, ky)
-    okz = _pick(ox, oy, oz, kz)
-    ivx = _inv_dir(dx)
-    ivy = _inv_dir(dy)
-    ivz = _inv_dir(dz)
-    nx = 0 if ivx >= 0.0 else 4
-    ny = 8 if ivy >= 0.0 else 12
-    nz = 16 if ivz >= 0.0 else 20
-    fx = 4 - nx
-    fy = 20 - ny
-    fz = 36 - nz
-    t_lo = np.float32(tmin)
-    t_hi = np.float32(tmax)
-    robust = np.float32(1.0000004)
+    if not (tmax > tmin):
+        ok = False
+    hit_any = False
+    if ok:
+        okx = _pick(ox, oy, oz, kx)
+        oky = _pick(ox, oy, oz, ky)
+        okz = _pick(ox, oy, oz, kz)
+        ivx = _inv_dir(dx)
+        ivy = _inv_dir(dy)
+        ivz = _inv_dir(dz)
+        nx = 0 if ivx >= 0.0 else 4
+        ny = 8 if ivy >= 0.0 else 12
+        nz = 16 if ivz >= 0.0 else 20
+        t_lo = np.float32(tmin)
+        t_hi = np.float32(tmax)
 
-    stack_ref = _stack_refs()
-    stack_ref[0] = 0
-    sp = 1
-    while sp > 0:
-        sp -= 1
-        ref = stack_ref[sp]
-        if ref >= 0:
-            base = 24 * ref
-            for c in range(4):
-                t0 = (nodes_f[base + nx + c] - ox) * ivx
-                t1 = (nodes_f[base + fx + c] - ox) * ivx
-                t2 = (nodes_f[base + ny + c] - oy) * ivy
-                t3 = (nodes_f[base + fy + c] - oy) * ivy
-                t4 = (nodes_f[base + nz + c] - oz) * ivz
-                t5 = (nodes_f[base + fz + c] - oz) * ivz
-                tn = max(max(t0, t2), max(t4, t_lo))
-                tf = min(min(min(t1, t3), t5) * robust, t_hi)
-                if tn <= tf:
-                    stack_ref[sp] = nodes_i[4 * ref + c]
-                    sp += 1
-        else:
-            v = ~ref
-            start = v >> 3
-            stop = start + (v & 7)
-            for i in range(start, stop):
-                hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
-                if hit and t > t_lo and t < t_hi:
-                    return True
-    return False
+        stack_ref = _stack_refs()
+        sp = 0
+        ref = np.int32(0)
+        while True:
+            if ref >= 0:
+                n0, n1, n2, n3, mask = _node_test(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi)
+                if mask != 0:
+                    c = 4 * ref
+                    for k in range(4):
+                        if mask & (1 << k):
+                            stack_ref[sp] = nodes_i[c + k]
+                            sp += 1
+                    sp -= 1
+                    ref = stack_ref[sp]
+                    continue
+            else:
+                v = ~ref
+                start = v >> 3
+                stop = start + (v & 7)
+                for i in range(start, stop):
+                    hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
+                    if hit and t > t_lo and t < t_hi:
+                        hit_any = True
+                        break
+                if hit_any:
+                    break
+            if sp == 0:
+                break
+            sp -= 1
+            ref = stack_ref[sp]
+    return hit_any
 
 
 @njit(**PARALLEL)
