@@ -88,13 +88,14 @@ def element_layout(component_type: int, type_name: str) -> tuple[int, int, int, 
     """Byte layout of one accessor element: ``(n_components, column_bytes, column_stride, size)``.
 
     Matrix columns start on 4-byte boundaries (glTF 2.0 §3.6.2.4), so MAT2 of bytes and MAT3
-    of bytes or shorts carry padding inside each element.
+    of bytes or shorts carry padding after each column; ``size`` includes it (8, 12 and 24
+    bytes for those three).
     """
     cols, rows = ELEMENT_SHAPES[type_name]
     comp = COMPONENT_DTYPES[component_type].itemsize
     column_bytes = rows * comp
     column_stride = column_bytes if cols == 1 else (column_bytes + 3) // 4 * 4
-    return cols * rows, column_bytes, column_stride, column_stride * (cols - 1) + column_bytes
+    return cols * rows, column_bytes, column_stride, column_stride * cols
 
 
 class GltfData:
