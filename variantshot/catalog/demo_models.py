@@ -314,7 +314,7 @@ PRODUCTS = {
         # part -> (material slot, Jinja material expression)
         "materials": [
             ("body", '{{ material(finish, colour, "body") | tojson }}'),
-            ("cap", '{{ material("soft-touch", colour_of(row.trim_colour) if row.trim_colour else colour_of("#2b2b2d"), "cap") | tojson }}'),
+            ("cap", '{{ material("soft-touch", colour_of(row.trim_colour) if row.get("trim_colour") else colour_of("#2b2b2d"), "cap") | tojson }}'),
         ],
         "nodes": [("body", "body", None), ("cap", "cap", None)],
     },
@@ -331,7 +331,7 @@ PRODUCTS = {
         "parts": speaker_parts,
         "materials": [
             ("shell", '{{ material(finish, colour, "shell") | tojson }}'),
-            ("grille", '{{ material("fabric", colour_of(row.trim_colour) if row.trim_colour else colour_of("lab(32, 0, -2)"), "grille") | tojson }}'),
+            ("grille", '{{ material("fabric", colour_of(row.trim_colour) if row.get("trim_colour") else colour_of("lab(32, 0, -2)"), "grille") | tojson }}'),
             ("rubber", '{{ material("rubber", colour_of("#1c1c1c"), "rubber") | tojson }}'),
             ("grille-charcoal", '{{ material("fabric", colour_of("lab(25, 0, 0)"), "grille-charcoal") | tojson }}'),
             ("grille-sand", '{{ material("fabric", colour_of("lab(74, 3, 14)"), "grille-sand") | tojson }}'),
@@ -398,7 +398,7 @@ def _template_text(name: str, spec: dict, base: dict) -> str:
         "{#- " + spec["title"] + ".",
         f"    Written by variantshot.catalog.demo_models; geometry in {name}.bin next to the model.",
         "    Materials come from the finish library: `finish` and `colour` are the catalog row's;",
-        "    row.trim_colour (an extra catalog column) colours the secondary part when given.",
+        "    row.trim_colour (an optional extra catalog column) colours the secondary part.",
         "    extensionsUsed is filled in by the expander. -#}",
         "{",
     ]

@@ -11,7 +11,7 @@ CSV rules
   removed, lower case, runs of anything but letters and digits become ``_`` (so ``Cap Colour``
   reaches a template as ``row.cap_colour``).
 * Quoted fields may hold commas, quotes (doubled) and line breaks (RFC 4180).
-* Surrounding spaces of every cell are removed; empty lines (and lines of only commas or
+* Surrounding spaces of every cell are removed (also around a quoted field); empty lines (and lines of only commas or
   spaces) are skipped.
 * Row numbers are the 1-based line on which the row *starts*, as an editor shows it (header =
   row 1 when it is the first line), so a quoted line break moves every later row down.
@@ -73,7 +73,9 @@ def safe_file_name(text: str) -> str:
         return stem
     ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode("ascii")
     mapped = _UNSAFE_CHARS.sub("_", ascii_text).lstrip(".-").rstrip(".")
-    mapped = re.sub(r"_+", "_", mapped)[: SAFE_NAME_MAX - 9] or "sku"
+    mapped = re.sub(r"_+", "_", mapped)[: SAFE_NAME_MAX - 10] or "sku"
+    if mapped.split(".")[0].lower() in RESERVED_FILE_STEMS:
+        mapped = "_" + mapped  # NUL.txt is as reserved as NUL
     digest = hashlib.sha256(text.encode("utf-8", "surrogatepass")).hexdigest()[:8]
     return f"{mapped}-{digest}"
 
@@ -179,7 +181,7 @@ def read_catalog_table(path, *, data: bytes | None = None) -> CatalogTable:
     if errors:
         return table
 
-    reader = csv.reader(io.StringIO(text, newline=""), strict=False)
+    reader = csv.reader(io.StringIO(text, newline=""), strict=False, skipinitialspace=True)
     header: list[str] | None = None
     raw_header: list[str] = []
     start = 1

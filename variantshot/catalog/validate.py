@@ -48,10 +48,17 @@ TEMPLATE_SUFFIX = ".gltf.j2"
 
 
 def closest(name: str, choices) -> str | None:
-    """The closest of ``choices`` to ``name`` (difflib ratio >= 0.6), or None."""
+    """The closest of ``choices`` to ``name``, or None.
+
+    difflib's ratio >= 0.6 first; failing that, the only choice that contains ``name`` (3+
+    characters), so ``sand`` suggests ``sand-grille``.
+    """
     lowered = {c.lower(): c for c in choices}
     match = difflib.get_close_matches(name.lower(), list(lowered), n=1, cutoff=0.6)
-    return lowered[match[0]] if match else None
+    if match:
+        return lowered[match[0]]
+    containing = [c for c in lowered if len(name) >= 3 and name.lower() in c]
+    return lowered[containing[0]] if len(containing) == 1 else None
 
 
 def unknown_name_message(kind: str, name: str, choices) -> str:
