@@ -105,10 +105,10 @@ _COMPRESSION = {
     "KHR_texture_basisu": "KTX2 / Basis Universal textures",
 }
 
-#: The most triangles one loaded scene may have (instances included).
-MAX_TRIANGLES = 1 << 25
+#: The most triangles one loaded scene may have (instances included): 16.7 million.
+MAX_TRIANGLES = 1 << 24
 #: The most vertices one loaded scene may have (instances and un-shared flat vertices included).
-MAX_VERTICES = 1 << 26
+MAX_VERTICES = 1 << 25
 #: The most pixels one texture image may have (8192 x 8192).
 MAX_TEXTURE_PIXELS = 1 << 26
 
@@ -403,6 +403,7 @@ class _Builder:
         self.g = g
         self.base = base
         self.mesh_cache: dict[int, list] = {}
+        self.image_cache: dict[int, np.ndarray] = {}
         self.need_default_material = False
 
     # .................................................................. top level
@@ -806,8 +807,10 @@ class _Builder:
         return value
 
     def _check_extension_textures(self, ext: dict, where: str) -> None:
-        """Texture references inside KHR_materials_* objects must name existing textures."""
+        """Texture references (``*Texture`` keys) inside KHR_materials_* objects must name existing textures."""
         for ext_name, body in ext.items():
+            if not ext_name.startswith("KHR_materials_"):
+                continue  # other vendors' extensions are kept raw and not interpreted here
             if not isinstance(body, dict):
                 raise self.g.error(f"{where}.{ext_name}", "must be an object")
             for key, value in body.items():
@@ -848,7 +851,9 @@ class _Builder:
             name = g.str_field(tex, "name", tw, default="")
         else:
             img = g.obj("images", source, tw, "image")
-            pixels = self._image(int(source), img)
+            if int(source) not in self.image_cache:
+                self.image_cache[int(source)] = self._image(int(source), img)
+            pixels = self.image_cache[int(source)]  # textures sharing an image share its pixels
             name = g.str_field(tex, "name", tw, default="") or g.str_field(img, "name", f"images[{int(source)}]", default="")
         return Texture(pixels=pixels, name=name, mag_filter=mag, min_filter=minf, wrap_s=wrap_s, wrap_t=wrap_t)
 

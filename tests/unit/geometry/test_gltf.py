@@ -812,3 +812,39 @@ def test_large_mesh_loads_vectorised():
     s = load(w)
     assert s.n_triangles == 2 * (n - 1) ** 2
     assert surface_area(s) == pytest.approx((n - 1) ** 2)
+
+
+def test_webp_source_and_sourceless_textures(caplog):
+    # EXT_texture_webp: its source is used when the client can decode WebP; a texture with no
+    # decodable source (as in the Validator files) becomes a 1x1 white texture with a warning
+    from PIL import Image
+
+    rgba = np.array([[[10, 20, 30, 255], [200, 100, 0, 128]]], np.uint8)
+    buf = io.BytesIO()
+    Image.fromarray(rgba).save(buf, format="WEBP", lossless=True, exact=True)
+    w = GltfWriter()
+    w.doc["extensionsUsed"] = ["EXT_texture_webp"]
+    w.doc["images"] = [{"uri": "data:image/png;base64," + base64.b64encode(_png(np.zeros((1, 1, 4), np.uint8))).decode()},
+                       {"uri": "data:image/webp;base64," + base64.b64encode(buf.getvalue()).decode()}]
+    w.doc["textures"] = [{"source": 0, "extensions": {"EXT_texture_webp": {"source": 1}}}, {}]
+    w.mesh(QUAD, QUAD_TRIS)
+    w.node(mesh=0)
+    with caplog.at_level(logging.WARNING, logger="variantshot.geometry.gltf"):
+        webp, blank = load(w).textures
+    ref = np.asarray(Image.open(io.BytesIO(buf.getvalue())).convert("RGBA"), np.float32) / 255  # Pillow reference
+    np.testing.assert_array_equal(webp.pixels, ref)
+    np.testing.assert_array_equal(blank.pixels, np.ones((1, 1, 4)))
+    assert "textures[1] has no image source" in caplog.text
+
+
+def test_supported_required_extensions_load_and_vendor_extensions_stay_raw():
+    w = GltfWriter()
+    w.doc["extensionsRequired"] = ["KHR_materials_clearcoat", "KHR_texture_transform", "KHR_materials_variants"]
+    w.doc["extensionsUsed"] = w.doc["extensionsRequired"] + ["VENDOR_fancy"]
+    w.doc["materials"] = [{"extensions": {"VENDOR_fancy": {"glowTexture": "not a textureInfo"},
+                                          "KHR_materials_clearcoat": {"clearcoatFactor": 1.0}}}]
+    w.mesh(QUAD, QUAD_TRIS, material=0)
+    w.node(mesh=0)
+    (m,) = load(w).materials
+    assert m.extensions["VENDOR_fancy"] == {"glowTexture": "not a textureInfo"}
+    assert m.extensions["KHR_materials_clearcoat"] == {"clearcoatFactor": 1.0}
