@@ -491,6 +491,7 @@ def test_sparse_without_buffer_view():
 # ----------------------------------------------------------------------------- primitive modes
 def test_triangle_strip_and_fan():
     # glTF 2.0 §3.7.2.1: strip p_i = {v_i, v_(i+(1+i%2)), v_(i+(2-i%2))}; fan p_i = {v_(i+1), v_(i+2), v_0}
+    # (formulas from memory; they are the OpenGL strip/fan orders up to a cyclic shift)
     w = GltfWriter()
     strip = np.array([[0, 0, 0], [0, 1, 0], [1, 0, 0], [1, 1, 0], [2, 0, 0]], np.float32)
     fan = np.array([[0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0], [-1, 1, 0]], np.float32)
