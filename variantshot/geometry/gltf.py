@@ -22,12 +22,21 @@ Choices (see DEVELOPERS.md):
 * Cameras get a rigid ``world_from_camera``: scale and shear are removed from the node's world
   matrix (the camera keeps its position, its −Z view direction and, as closely as possible, its
   +Y up), since glTF's camera model has no scale.
-* POINTS and LINES primitives are skipped with a logged warning.
-* Quaternions are normalised before use.
-* Limits against hostile files: at most :data:`MAX_TRIANGLES` triangles in a scene, textures
-  of at most :data:`MAX_TEXTURE_PIXELS` pixels, zero-filled accessors of at most
-  :data:`~variantshot.geometry.accessors.MAX_UNBACKED_BYTES`; every extent is checked before
-  allocating.
+* POINTS and LINES primitives are skipped with a logged warning; a TRIANGLES index count that
+  is not a multiple of 3 drops the remainder with a warning.  Degenerate triangles stay.
+* Quaternions are normalised before use.  Animation, skins and morph targets are ignored (the
+  rest pose is loaded).
+* The materials table is the file's ``materials`` in order (unnamed ones are called
+  ``material<i>``), plus one ``default`` material at the end when a drawn primitive has none.
+  The textures table is the file's ``textures`` in order; a texture without a decodable
+  source becomes a 1x1 white texture (with a warning).
+* Limits against hostile files: at most :data:`MAX_TRIANGLES` triangles and
+  :data:`MAX_VERTICES` vertices in a scene (checked from the declared counts before any
+  geometry is decoded), textures of at most :data:`MAX_TEXTURE_PIXELS` pixels, zero-filled
+  accessors of at most :data:`~variantshot.geometry.accessors.MAX_UNBACKED_BYTES`; every
+  accessor extent is checked against its bufferView and buffer before allocating, and node
+  hierarchies must be strict trees (a node reached twice is an error, which also stops
+  exponential instancing).
 
 pygltflib provides the spec's constants; the JSON is read with :mod:`json` (so a syntax error
 names its line and column), the GLB container with a strict reader of our own, and accessors
