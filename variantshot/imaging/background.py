@@ -2,28 +2,24 @@
 
 Shadow catcher
 --------------
-A shot on a ``white`` or ``transparent`` background uses two renders of the same camera with the
-same seed: the product in the rig (``rgb_with``) and the rig alone (``rgb_without``).  On
-background pixels the ratio of the two is the shadow the product casts (what the floor receives
-with the product over what it receives without it):
+A shot on a ``white`` or ``transparent`` background keeps the product's shadow but not the
+studio floor.  The shadow is the ratio of what the floor receives with the product over what it
+receives without it, ``ratio`` in [0, 1] per pixel (computed by the batch from the rig's lights:
+:func:`variantshot.geometry.rig.direct_light_ratio`).  As on a real white sweep, the background
+is lit ``boost_ev`` stops above paper white (1 stop by default, the rig's ``white_boost_ev``;
+photographers over-light a white sweep by 1-2 stops so that it burns out to pure white and only
+the contact shadow stays, common practice, no source):
 
-    ratio = blur(Y_with · (1 − α)) / blur(Y_without · (1 − α))
+    s = min(1, ratio · 2 ** boost_ev)
 
-with ``Y`` the luminance, ``α`` the product's coverage, and ``blur`` a box filter whose radius is
-``blur_frac`` of the longer image side (it averages the Monte Carlo noise of the two renders;
-weighting by ``1 − α`` keeps product pixels out of the floor estimate).  Because both renders use
-the same random numbers per pixel, paths that never meet the product give identical values and
-the ratio is exactly 1 there, not 1 ± noise.
+Every pixel with ``ratio >= 2 ** -boost_ev`` is **outside the shadow region** and becomes
+exactly 1.0 (paper white, code 255); inside it the shadow deepens continuously to the contact
+line.
 
-The shadow is ``s = min(1, ratio / (1 − SHADOW_SNAP))``: every pixel whose ratio is within
-``SHADOW_SNAP`` (2 %) of 1 is **outside the shadow region** and becomes exactly 1.0 (paper white,
-code 255).  2 % of the background level is below what the eye notices as a shadow on white and
-above the residual noise of a blurred draft render; the division keeps the shadow's falloff
-continuous at the snap (no visible step).
-
-* ``white``: background pixels are ``s`` (grey only where a shadow falls); product pixels are
-  the exposed render; edge pixels (0 < α < 1) take the product's share of the render plus
-  ``(1 − α) · s`` (the floor's share of the render is taken out, so edges show no grey fringe).
+* ``white``: background pixels (coverage α = 0) are ``s``; product pixels (α = 1) are the exposed
+  render; edge pixels take the product's share of the render, ``L − (1 − α) F`` with ``F`` the
+  floor radiance next to them (a masked blur of the neighbouring background pixels), plus
+  ``(1 − α) s``, so edges show no grey fringe from the studio floor.
 * ``transparent``: the product over a black shadow matte of opacity ``1 − s``, as straight
   (un-premultiplied) RGBA: alpha = α + (1 − α)(1 − s).
 * ``backdrop``: the render as it is, exposed.
@@ -34,19 +30,17 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = [
-    "SHADOW_SNAP",
-    "BLUR_FRAC",
+    "DEFAULT_BOOST_EV",
     "box_blur",
-    "shadow_ratio",
+    "snap_shadow",
+    "floor_behind",
     "composite_white",
     "composite_transparent",
     "composite_backdrop",
     "composite",
 ]
 
-SHADOW_SNAP = 0.02
-BLUR_FRAC = 0.008
-_Y = np.array([0.2126, 0.7152, 0.0722])  # Rec. 709 / sRGB luminance weights (IEC 61966-2-1)
+DEFAULT_BOOST_EV = 1.0
 
 
 def box_blur(image: np.ndarray, radius: int) -> np.ndarray:
@@ -63,74 +57,64 @@ def box_blur(image: np.ndarray, radius: int) -> np.ndarray:
     return s / (k * k)
 
 
-def _blur_radius(shape, blur_frac: float) -> int:
-    return max(1, int(round(blur_frac * max(shape[:2]))))
+def snap_shadow(ratio, boost_ev: float = DEFAULT_BOOST_EV) -> np.ndarray:
+    """``min(1, ratio · 2 ** boost_ev)``: the shadow on a sweep lit ``boost_ev`` stops over white;
+    ratios at or above ``2 ** -boost_ev`` become exactly 1."""
+    r = np.nan_to_num(np.asarray(ratio, np.float64), nan=1.0)
+    return np.clip(r * 2.0 ** float(boost_ev), 0.0, 1.0)
 
 
-def shadow_ratio(rgb_with, rgb_without, coverage, *, blur_frac: float = BLUR_FRAC, snap: float = SHADOW_SNAP) -> np.ndarray:
-    """The product's shadow on the background, 1 = unshadowed (see the module docstring).
-
-    Parameters
-    ----------
-    rgb_with, rgb_without : (H, W, 3) float ndarray
-        Linear radiance of the shot and of the same view without the product.
-    coverage : (H, W) float ndarray
-        The product's coverage α in [0, 1].
-    blur_frac : float
-        Blur radius as a fraction of the longer side (at least 1 px).
-    snap : float
-        Ratios within ``snap`` of 1 become exactly 1.
-
-    Returns
-    -------
-    (H, W) float64 ndarray in [0, 1]
-    """
-    rw = np.asarray(rgb_with, np.float64)
-    ro = np.asarray(rgb_without, np.float64)
-    a = np.clip(np.asarray(coverage, np.float64), 0.0, 1.0)
-    bg = 1.0 - a
-    r = _blur_radius(a.shape, blur_frac)
-    yw = box_blur(np.nan_to_num(rw @ _Y) * bg, r)
-    yo = box_blur(np.nan_to_num(ro @ _Y) * bg, r)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = np.where(yo > 1e-12, yw / yo, 1.0)
-    return np.clip(ratio / (1.0 - snap), 0.0, 1.0)
+def floor_behind(rgb_linear, coverage, radius: int = 3) -> np.ndarray:
+    """Estimate of the floor's radiance behind each pixel from nearby pure-background pixels
+    (α = 0): a box blur of the render weighted by the background mask; 0 where none is near."""
+    rgb = np.nan_to_num(np.asarray(rgb_linear, np.float64))
+    bgmask = (np.asarray(coverage, np.float64) <= 0.0).astype(np.float64)
+    wsum = box_blur(bgmask, radius)
+    out = np.zeros_like(rgb)
+    for k in range(3):
+        num = box_blur(rgb[..., k] * bgmask, radius)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out[..., k] = np.where(wsum > 0, num / np.maximum(wsum, 1e-300), 0.0)
+    return out
 
 
-def composite_white(rgb_with, rgb_without, coverage, exposure_scale: float, shadow=None):
+def _product_premultiplied(rgb, a, exposure_scale):
+    """Exposed product colour × α: the render minus the floor's share on edge pixels."""
+    bg = (1.0 - a)[..., None]
+    edge = np.maximum(rgb - bg * floor_behind(rgb, a), 0.0)
+    prod = np.where(a[..., None] >= 1.0, rgb, edge)
+    prod = np.where(a[..., None] <= 0.0, 0.0, prod)
+    return exposure_scale * prod
+
+
+def composite_white(rgb_with, coverage, exposure_scale: float, shadow) -> np.ndarray:
     """White background with the kept contact shadow.
 
     Parameters
     ----------
-    rgb_with, rgb_without : (H, W, 3) float ndarray
-        Linear renders with and without the product.
+    rgb_with : (H, W, 3) float ndarray
+        Linear render of the shot (product in the rig).
     coverage : (H, W) float ndarray
-        Product coverage α.
+        Product coverage α in [0, 1].
     exposure_scale : float
         Linear gain applied to the product (``2 ** exposure_ev``).
-    shadow : (H, W) float ndarray, optional
-        A precomputed :func:`shadow_ratio`.
+    shadow : (H, W) float ndarray
+        Snapped shadow ``s`` (:func:`snap_shadow`), 1 = unshadowed.
 
     Returns
     -------
     rgb_linear : (H, W, 3) float64 ndarray
-        Display-ready linear values (exposure applied; encode with ``exposure_ev=0``); every
-        background pixel outside the shadow region is exactly 1.0.
-    shadow : (H, W) float64 ndarray
+        Display-ready linear values (encode with ``exposure_ev=0``); every background pixel with
+        ``s == 1`` is exactly 1.0.
     """
-    rw = np.nan_to_num(np.asarray(rgb_with, np.float64))
-    ro = np.nan_to_num(np.asarray(rgb_without, np.float64))
+    rgb = np.nan_to_num(np.asarray(rgb_with, np.float64))
     a = np.clip(np.asarray(coverage, np.float64), 0.0, 1.0)
-    s = shadow_ratio(rw, ro, a) if shadow is None else np.asarray(shadow, np.float64)
-    bg = (1.0 - a)[..., None]
-    s3 = s[..., None]
-    edge = np.maximum(exposure_scale * (rw - bg * ro * s3), 0.0) + bg * s3
-    out = np.where(a[..., None] <= 0.0, np.repeat(s3, 3, axis=2), edge)
-    out = np.where(a[..., None] >= 1.0, exposure_scale * rw, out)
-    return out, s
+    s = np.asarray(shadow, np.float64)
+    out = _product_premultiplied(rgb, a, exposure_scale) + ((1.0 - a) * s)[..., None]
+    return np.where(a[..., None] >= 1.0, exposure_scale * rgb, out)
 
 
-def composite_transparent(rgb_with, rgb_without, coverage, exposure_scale: float, shadow=None):
+def composite_transparent(rgb_with, coverage, exposure_scale: float, shadow):
     """The product over a semi-transparent black shadow matte, straight RGBA.
 
     Returns
@@ -139,20 +123,15 @@ def composite_transparent(rgb_with, rgb_without, coverage, exposure_scale: float
         Colour (exposure applied), un-premultiplied; black where only shadow is.
     alpha : (H, W) float64 ndarray
         α + (1 − α)(1 − s): 0 on the unshadowed background.
-    shadow : (H, W) float64 ndarray
     """
-    rw = np.nan_to_num(np.asarray(rgb_with, np.float64))
-    ro = np.nan_to_num(np.asarray(rgb_without, np.float64))
+    rgb = np.nan_to_num(np.asarray(rgb_with, np.float64))
     a = np.clip(np.asarray(coverage, np.float64), 0.0, 1.0)
-    s = shadow_ratio(rw, ro, a) if shadow is None else np.asarray(shadow, np.float64)
-    bg = (1.0 - a)[..., None]
-    product_premult = np.maximum(exposure_scale * (rw - bg * ro * s[..., None]), 0.0)
-    product_premult = np.where(a[..., None] >= 1.0, exposure_scale * rw, product_premult)
-    product_premult = np.where(a[..., None] <= 0.0, 0.0, product_premult)
+    s = np.asarray(shadow, np.float64)
+    premult = _product_premultiplied(rgb, a, exposure_scale)
     alpha = a + (1.0 - a) * (1.0 - s)
     with np.errstate(divide="ignore", invalid="ignore"):
-        rgb = np.where(alpha[..., None] > 0, product_premult / alpha[..., None], 0.0)
-    return rgb, alpha, s
+        colour = np.where(alpha[..., None] > 0, premult / np.maximum(alpha, 1e-300)[..., None], 0.0)
+    return colour, alpha
 
 
 def composite_backdrop(rgb_with, exposure_scale: float) -> np.ndarray:
@@ -160,13 +139,12 @@ def composite_backdrop(rgb_with, exposure_scale: float) -> np.ndarray:
     return exposure_scale * np.nan_to_num(np.asarray(rgb_with, np.float64))
 
 
-def composite(background: str, rgb_with, rgb_without, coverage, exposure_scale: float):
-    """Dispatch on the background name; returns ``(rgb_linear, alpha or None, shadow or None)``."""
+def composite(background: str, rgb_with, coverage, exposure_scale: float, shadow=None):
+    """Dispatch on the background name; returns ``(rgb_linear, alpha or None)``."""
     if background == "white":
-        rgb, s = composite_white(rgb_with, rgb_without, coverage, exposure_scale)
-        return rgb, None, s
+        return composite_white(rgb_with, coverage, exposure_scale, shadow), None
     if background == "transparent":
-        return composite_transparent(rgb_with, rgb_without, coverage, exposure_scale)
+        return composite_transparent(rgb_with, coverage, exposure_scale, shadow)
     if background == "backdrop":
-        return composite_backdrop(rgb_with, exposure_scale), None, None
+        return composite_backdrop(rgb_with, exposure_scale), None
     raise ValueError(f"unknown background {background!r} (white, transparent, backdrop)")

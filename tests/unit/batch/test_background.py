@@ -6,26 +6,23 @@ import numpy as np
 import pytest
 
 from variantshot.imaging.background import (
-    SHADOW_SNAP,
     box_blur,
     composite_transparent,
     composite_white,
-    shadow_ratio,
+    floor_behind,
+    snap_shadow,
 )
 
 
-def _scene(h=64, w=64, seed=1):
-    rng = np.random.default_rng(seed)
-    floor = 0.6 + 0.05 * rng.standard_normal((h, w, 3))  # noisy floor, the same in both renders
-    without = floor.copy()
-    with_ = floor.copy()
+def _scene(h=64, w=64):
     yy, xx = np.mgrid[0:h, 0:w]
-    # a product disc in the middle, and a soft shadow below it that halves the floor at most
+    floor = np.full((h, w, 3), 0.6)
     cov = ((yy - 28) ** 2 + (xx - 32) ** 2 < 100).astype(float)
-    shadow = 1.0 - 0.5 * np.exp(-(((yy - 42) / 4.0) ** 2 + ((xx - 32) / 10.0) ** 2))
-    with_ *= shadow[..., None]
-    with_[cov > 0] = (0.3, 0.1, 0.05)
-    return with_, without, cov, shadow
+    cov[(yy - 28) ** 2 + (xx - 32) ** 2 == 100] = 0.5  # a ring of edge pixels
+    ratio = 1.0 - 0.9 * np.exp(-(((yy - 42) / 4.0) ** 2 + ((xx - 32) / 10.0) ** 2))
+    product = np.array([0.3, 0.1, 0.05])
+    rgb = floor * ratio[..., None] * (1 - cov[..., None]) + cov[..., None] * product
+    return rgb, cov, ratio, product
 
 
 def test_box_blur_matches_scipy_uniform_filter():
@@ -35,43 +32,53 @@ def test_box_blur_matches_scipy_uniform_filter():
     np.testing.assert_allclose(box_blur(a, 2), ref, atol=1e-12)
 
 
+def test_snap_is_one_stop_over_white():
+    # a sweep lit 1 stop (x2) over paper white burns out wherever it gets at least half its light
+    r = np.array([0.0, 0.25, 0.5, 0.7, 1.0])
+    np.testing.assert_array_equal(snap_shadow(r, 1.0), [0.0, 0.5, 1.0, 1.0, 1.0])
+    np.testing.assert_array_equal(snap_shadow(r, 0.0), r)
+
+
 def test_unshadowed_background_is_exactly_white_and_encodes_to_255():
     from PIL import Image
 
     from variantshot.imaging.files import encode_image
 
-    with_, without, cov, true_shadow = _scene()
-    rgb, s = composite_white(with_, without, cov, exposure_scale=2.0)
-    outside = (cov == 0) & (true_shadow > 1 - 1e-6)
-    # identical floor samples -> ratio exactly 1 -> exactly 1.0 in linear ...
-    assert np.all(rgb[outside] == 1.0)
-    # ... and exactly (255, 255, 255) after sRGB encoding (IEC 61966-2-1: encode(1) = 1) with dither
-    png = encode_image(rgb, "png", dither=True, seed=3)
+    rgb, cov, ratio, product = _scene()
+    s = snap_shadow(ratio, 1.0)
+    out = composite_white(rgb, cov, 2.0, s)
+    outside = (cov == 0) & (ratio >= 0.5)
+    assert np.all(out[outside] == 1.0)
+    # exactly (255, 255, 255) after sRGB encoding (IEC 61966-2-1: encode(1) = 1), dither on
+    png = encode_image(out, "png", dither=True, seed=3)
     codes = np.asarray(Image.open(io.BytesIO(png)).convert("RGB"))
     assert np.all(codes[outside] == 255)
-    # the shadow is kept where it is deeper than the snap threshold
-    deep = (cov == 0) & (true_shadow < 0.8)
-    assert deep.any() and np.all(rgb[deep].max(axis=-1) < 0.9)
-    # product pixels are the exposed render
-    np.testing.assert_allclose(rgb[cov == 1], 2.0 * with_[cov == 1])
+    deep = (cov == 0) & (ratio < 0.3)
+    assert deep.any() and np.all(out[deep] < 0.6)
+    np.testing.assert_allclose(out[cov == 1], 2.0 * rgb[cov == 1])
+    # edge pixels: half product (exposed), half white background - no grey fringe from the floor
+    edge = (cov == 0.5) & (np.mgrid[0:64, 0:64][0] < 24)  # the top of the ring, far from the shadow
+    assert edge.any()
+    np.testing.assert_allclose(out[edge], np.broadcast_to(0.5 * 2.0 * product + 0.5, out[edge].shape), atol=0.02)
 
 
-def test_shadow_ratio_recovers_a_known_shadow():
-    with_, without, cov, true_shadow = _scene()
-    s = shadow_ratio(with_, without, cov, blur_frac=0.0)  # radius floors at 1 px
-    region = (cov == 0) & (true_shadow < 1 - 2 * SHADOW_SNAP)
-    region &= box_blur(cov, 1) == 0  # away from the product's blur footprint
-    expected = np.clip(true_shadow / (1 - SHADOW_SNAP), 0, 1)
-    assert np.abs(s[region] - expected[region]).max() < 0.03
+def test_floor_behind_recovers_the_floor_next_to_the_product():
+    rgb, cov, ratio, _ = _scene()
+    f = floor_behind(rgb, cov, radius=3)
+    edge = (cov == 0.5) & (np.mgrid[0:64, 0:64][0] < 24)  # the top of the ring, far from the shadow
+    np.testing.assert_allclose(f[edge], 0.6, atol=0.01)
 
 
 def test_transparent_matte_alpha():
-    with_, without, cov, true_shadow = _scene()
-    rgb, alpha, s = composite_transparent(with_, without, cov, exposure_scale=1.0)
+    rgb, cov, ratio, product = _scene()
+    s = snap_shadow(ratio, 1.0)
+    colour, alpha = composite_transparent(rgb, cov, 1.0, s)
     assert np.all(alpha[cov == 1] == 1.0)
-    far = (cov == 0) & (true_shadow > 1 - 1e-6)
+    far = (cov == 0) & (ratio >= 0.5)
     assert np.all(alpha[far] == 0.0)
-    deep = (cov == 0) & (true_shadow < 0.8)
-    # Porter & Duff (1984) "over": a black matte of opacity 1 - s
+    deep = (cov == 0) & (ratio < 0.3)
+    # Porter & Duff (1984) "over": a black matte of opacity 1 - s under the product
     np.testing.assert_allclose(alpha[deep], 1.0 - s[deep])
-    assert np.all(rgb[deep] == 0.0)
+    assert np.all(colour[deep] == 0.0)
+    edge = (cov == 0.5) & (np.mgrid[0:64, 0:64][0] < 24)  # the top of the ring, far from the shadow
+    np.testing.assert_allclose(colour[edge], np.broadcast_to(product, colour[edge].shape), atol=0.02)  # un-premultiplied
