@@ -140,7 +140,7 @@ class TemplateColourError(ValueError):
 
 @functools.lru_cache(maxsize=16)
 def _environment(templates_dir: str):
-    from jinja2 import FileSystemLoader, StrictUndefined
+    from jinja2 import FileSystemLoader, StrictUndefined, Undefined
     from jinja2.sandbox import ImmutableSandboxedEnvironment
 
     env = ImmutableSandboxedEnvironment(
@@ -157,7 +157,20 @@ def _environment(templates_dir: str):
         except ColourSyntaxError as exc:
             raise TemplateColourError(f"colour_of({text!r}): {exc} (accepted: {exc.accepted})") from None
 
+    def tojson(value, indent=None):
+        # Jinja's own tojson would serialise an undefined value as a TypeError; raise the
+        # undefined-name error instead, and do not HTML-escape (the output is JSON, not HTML)
+        def default(obj):
+            if isinstance(obj, Undefined):
+                obj._fail_with_undefined_error()
+            if hasattr(obj, "as_dict"):
+                return obj.as_dict()
+            raise TypeError(f"{type(obj).__name__} cannot be written as JSON")
+
+        return json.dumps(value, indent=indent, default=default, ensure_ascii=False)
+
     env.globals["colour_of"] = colour_of
+    env.filters["tojson"] = tojson
     return env
 
 
@@ -219,7 +232,9 @@ def render_template(product: Product, library: Library, variant: Variant) -> str
         kind = type(exc).__name__
         message = exc.message if getattr(exc, "message", None) else str(exc)
         if kind == "TemplateNotFound":
-            message = f"cannot include {message!r}: templates may only include files inside {display_path(library.templates_dir)}"
+            missing = getattr(exc, "name", None) or message
+            message = (f"cannot include {missing!r}: templates may only include files inside "
+                       f"{display_path(library.templates_dir)}")
         elif kind == "SecurityError":
             message = f"refused by the template sandbox: {message}"
         raise InputError(f"{message} ({where})", file=display_path(template_file), row=line,
