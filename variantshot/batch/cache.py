@@ -14,8 +14,9 @@ canonical JSON (sorted keys, no spaces, floats by ``repr``):
    their fields and class name),
 8. the angle, with its preset definition and the framing parameters.
 
-File digests are cached per (path, size, mtime_ns), so planning a big catalog hashes each model
-once.
+File digests can be shared through a ``digests`` dict (one per planning run), so planning a
+big catalog hashes each model once; nothing is cached between runs, so an edit that keeps a
+file's size and time stamp is still seen.
 """
 
 from __future__ import annotations
@@ -30,7 +31,6 @@ from pathlib import Path
 import numpy as np
 
 KEY_FORMAT = "variantshot-shot-key/1"
-_DIGESTS: dict[tuple, str] = {}
 
 
 def canonical(obj):
@@ -63,15 +63,14 @@ def canonical_json(obj) -> str:
     return json.dumps(canonical(obj), sort_keys=True, separators=(",", ":"), ensure_ascii=False)
 
 
-def file_sha256(path) -> str:
-    """SHA-256 hex of a file's bytes, cached while its size and mtime stay the same."""
+def file_sha256(path, digests: dict | None = None) -> str:
+    """SHA-256 hex of a file's bytes (memoised in ``digests`` when given)."""
     p = Path(path).resolve()
-    st = p.stat()
-    k = (str(p), st.st_size, st.st_mtime_ns)
-    digest = _DIGESTS.get(k)
-    if digest is None:
-        digest = hashlib.sha256(p.read_bytes()).hexdigest()
-        _DIGESTS[k] = digest
+    if digests is not None and p in digests:
+        return digests[p]
+    digest = hashlib.sha256(p.read_bytes()).hexdigest()
+    if digests is not None:
+        digests[p] = digest
     return digest
 
 
@@ -87,6 +86,7 @@ def shot_key(
     angle: str,
     angle_definition=None,
     material_variant: str | None = None,
+    digests: dict | None = None,
 ) -> str:
     """The content-hash key of one shot (see the module docstring).
 
@@ -108,6 +108,8 @@ def shot_key(
     angle_definition : object, optional
         The preset and framing parameters (None for a template camera).
     material_variant : str, optional
+    digests : dict, optional
+        Memo of file digests for one planning run.
 
     Returns
     -------
@@ -121,10 +123,10 @@ def shot_key(
     parts = {
         "format": KEY_FORMAT,
         "renderer": renderer_version,
-        "templates": [[Path(p).name, file_sha256(p)] for p in template_files],
+        "templates": [[Path(p).name, file_sha256(p, digests)] for p in template_files],
         "row": {k: row[k] for k in sorted(row)},
         "material_variant": material_variant,
-        "models": [[Path(p).name, file_sha256(p)] for p in model_files],
+        "models": [[Path(p).name, file_sha256(p, digests)] for p in model_files],
         "rig": [rig_name, rig_part],
         "settings": canonical(settings),
         "angle": [angle, canonical(angle_definition)],

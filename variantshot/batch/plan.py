@@ -170,6 +170,7 @@ def plan_shots(catalog, out_dir, settings=None, *, rig: str | None = None, templ
     manifest = _read_manifest_shots(out_dir)
     renderer = f"variantshot {__version__}"
     rig_defs: dict[str, object] = {}
+    digests: dict = {}
     shots = []
     for scene in report.scenes:
         v = scene.variant
@@ -189,7 +190,7 @@ def plan_shots(catalog, out_dir, settings=None, *, rig: str | None = None, templ
             key = shot_key(
                 renderer_version=renderer, template_files=template_files, row=v.row, model_files=model_files,
                 rig_name=rig_name, rig_definition=rig_defs[rig_name], settings=settings, angle=angle,
-                angle_definition=angle_def, material_variant=scene.material_variant,
+                angle_definition=angle_def, material_variant=scene.material_variant, digests=digests,
             )
             sid = shot_id(scene.safe_name, angle)
             entry = manifest.get(sid)
