@@ -621,8 +621,15 @@ class _Builder:
         attrs = g.dict_field(prim, "attributes", pw)
         if "POSITION" not in attrs:
             compressed = [e for e in ext if e in _COMPRESSION]
-            extra = f" (its data is {_COMPRESSION[compressed[0]]}, which is not supported)" if compressed else ""
-            raise g.error(pw, f"has no POSITION attribute{extra}")
+            if compressed:
+                raise g.error(
+                    pw,
+                    f"has no POSITION attribute (its data is {_COMPRESSION[compressed[0]]}, which is not "
+                    "supported; re-export the file without compression)",
+                )
+            # glTF 2.0 §3.7.2.1: without POSITION a client SHOULD skip the primitive
+            log.warning("%s: %s has no POSITION attribute; it is not drawn", g.file, pw)
+            return None
         positions = self._attribute(attrs, "POSITION", pw, None)
         n_v = positions.shape[0]
         normals = self._attribute(attrs, "NORMAL", pw, n_v)

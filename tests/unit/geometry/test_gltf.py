@@ -849,3 +849,55 @@ def test_supported_required_extensions_load_and_vendor_extensions_stay_raw():
     (m,) = load(w).materials
     assert m.extensions["VENDOR_fancy"] == {"glowTexture": "not a textureInfo"}
     assert m.extensions["KHR_materials_clearcoat"] == {"clearcoatFactor": 1.0}
+
+
+def test_primitive_without_position_is_skipped(caplog):
+    # glTF 2.0 §3.7.2.1: without POSITION the client SHOULD skip the primitive
+    w = GltfWriter()
+    w.mesh(QUAD, QUAD_TRIS)
+    w.doc["meshes"][0]["primitives"].append({"attributes": {"NORMAL": w.accessor(np.tile([0, 0, 1.0], (4, 1)))}})
+    w.node(mesh=0)
+    with caplog.at_level(logging.WARNING, logger="variantshot.geometry.gltf"):
+        assert load(w).n_triangles == 2
+    assert "primitives[1] has no POSITION" in caplog.text
+
+
+def _feature_writer():
+    """A file using most loader features at once: strip, fan, texture, sampler, materials, lights, cameras."""
+    w = GltfWriter()
+    w.doc["extensionsUsed"] = ["KHR_lights_punctual", "KHR_texture_transform", "KHR_materials_emissive_strength"]
+    w.doc["extensions"] = {"KHR_lights_punctual": {"lights": [{"type": "spot", "spot": {"outerConeAngle": 0.6}}]}}
+    w.doc["images"] = [{"bufferView": w.view(_png(np.full((4, 4, 4), 200, np.uint8))), "mimeType": "image/png"}]
+    w.doc["samplers"] = [{"magFilter": LINEAR, "minFilter": 9987, "wrapS": MIRRORED_REPEAT}]
+    w.doc["textures"] = [{"source": 0, "sampler": 0}]
+    w.doc["materials"] = [{"pbrMetallicRoughness": {"baseColorTexture": {
+        "index": 0, "extensions": {"KHR_texture_transform": {"scale": [2, 2]}}}},
+        "emissiveFactor": [1, 1, 1], "extensions": {"KHR_materials_emissive_strength": {"emissiveStrength": 5}}}]
+    w.doc["cameras"] = [{"type": "perspective", "perspective": {"yfov": 0.6, "znear": 0.05}}]
+    strip = np.array([[0, 0, 0], [0, 1, 0], [1, 0, 0], [1, 1, 0]], np.float32)
+    w.mesh(strip, np.array([0, 1, 2, 3], np.uint16), mode=5, index_type=USHORT, material=0,
+           TEXCOORD_0=strip[:, :2])
+    w.mesh(QUAD, None, mode=6)
+    w.node(mesh=0, rotation=[0, 0.6, 0, 0.8])
+    w.node(mesh=1, scale=[-1, 1, 1])
+    w.node(camera=0, translation=[0, 0, 4])
+    w.node(extensions={"KHR_lights_punctual": {"light": 0}}, translation=[0, 3, 0])
+    return w
+
+
+def test_generated_files_pass_the_khronos_validator(khronos_validate, tmp_path):
+    # the fixtures these tests trust are valid glTF 2.0 according to the reference validator
+    paths = []
+    w = _cube_writer()
+    paths.append(w.write_gltf(tmp_path / "cube.gltf"))
+    paths.append(_cube_writer().write_gltf(tmp_path / "cube_ext.gltf", external=True))
+    (tmp_path / "cube.glb").write_bytes(_cube_writer().glb_bytes())
+    paths.append(tmp_path / "cube.glb")
+    (tmp_path / "features.glb").write_bytes(_feature_writer().glb_bytes())
+    paths.append(tmp_path / "features.glb")
+    for report in khronos_validate(paths):
+        assert report["errors"] == 0, report
+    scene = load_gltf(tmp_path / "features.glb")
+    assert scene.n_triangles == 2 + 2 and len(scene.cameras) == 1 and len(scene.lights) == 1
+    assert scene.materials[0].base_colour_texture.transform.scale == (2.0, 2.0)
+    assert scene.materials[0].emissive_strength == 5.0
