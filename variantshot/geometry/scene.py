@@ -128,7 +128,7 @@ class Scene:
     positions : (V, 3) float32 ndarray
         World-space vertex positions.
     normals : (V, 3) float32 ndarray
-        World-space unit vertex normals (generated, area-weighted, when the file has none).
+        World-space unit vertex normals (the loader makes flat normals when the file has none, as glTF §3.7.2.1 requires; make_scene generates area-weighted ones).
     uvs : (V, 2, 2) float32 ndarray
         TEXCOORD_0 and TEXCOORD_1 (zeros where absent).
     tangents : (V, 4) float32 ndarray
