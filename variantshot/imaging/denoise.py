@@ -275,7 +275,7 @@ def denoise(
     Returns
     -------
     rgb_linear : (H, W, 3) float64 ndarray
-        The denoised radiance (a new array).  When OIDN cannot run here (see
+        The denoised radiance (a new array), non-negative, and at most 1 when ``hdr=False``.  When OIDN cannot run here (see
         :func:`is_available`) a warning is logged once and the sanitised input is returned.
 
     Raises
@@ -339,6 +339,8 @@ def denoise(
     np.maximum(result, 0.0, out=result)
     if preserve_local_mean:
         result = restore_local_means(clean, result, mean_radius_px)
+    if not hdr:
+        np.minimum(result, 1.0, out=result)
     return result
 
 
