@@ -214,3 +214,84 @@ def parse_colour(text: str) -> ColourSpec:
         delta_e = float(cs.delta_e_2000(lab_d65, cs.lab_from_linear_srgb(linear)))
     srgb = cs.srgb_encode(linear)
     return ColourSpec(text, space, _tuple3(linear), _tuple3(srgb), _tuple3(lab_d65), in_gamut, delta_e)
+
+
+def _map_many_into_gamut(lab_d65: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Vectorised :func:`map_lab_into_srgb_gamut` for ``(N, 3)`` CIELAB D65 (same bisection)."""
+    rgb = cs.linear_srgb_from_lab(lab_d65)
+    ok = np.all((rgb >= -GAMUT_TOLERANCE) & (rgb <= 1.0 + GAMUT_TOLERANCE), axis=-1)
+    bad = np.nonzero(~ok)[0]
+    if bad.size:
+        lab = lab_d65[bad]
+        chroma = np.hypot(lab[:, 1], lab[:, 2])
+        hue = np.arctan2(lab[:, 2], lab[:, 1])
+        lo, hi = np.zeros_like(chroma), chroma.copy()
+        while np.any(hi - lo > 1e-6):
+            mid = 0.5 * (lo + hi)
+            trial = np.stack([lab[:, 0], mid * np.cos(hue), mid * np.sin(hue)], axis=-1)
+            t = cs.linear_srgb_from_lab(trial)
+            inside = np.all((t >= -GAMUT_TOLERANCE) & (t <= 1.0 + GAMUT_TOLERANCE), axis=-1)
+            active = hi - lo > 1e-6
+            lo = np.where(active & inside, mid, lo)
+            hi = np.where(active & ~inside, mid, hi)
+        rgb[bad] = cs.linear_srgb_from_lab(np.stack([lab[:, 0], lo * np.cos(hue), lo * np.sin(hue)], axis=-1))
+    return np.clip(rgb, 0.0, 1.0), ok
+
+
+def parse_colours(texts) -> dict:
+    """Parse many colour cells at once (vectorised); same results as :func:`parse_colour`.
+
+    Parameters
+    ----------
+    texts : iterable of str
+
+    Returns
+    -------
+    dict
+        ``{text: ColourSpec or ColourSyntaxError}`` for every distinct text.
+    """
+    out: dict = {}
+    hex_texts, hex_codes, lab_texts, lab_values, lab_kinds = [], [], [], [], []
+    for text in dict.fromkeys(texts):
+        s = text.strip()
+        m = _HEX_RE.fullmatch(s)
+        if m:
+            h = m.group(1)
+            hex_texts.append(text)
+            hex_codes.append((int(h[0:2], 16), int(h[2:4], 16), int(h[4:6], 16)))
+            continue
+        m = _LAB_RE.fullmatch(s)
+        if m:
+            values = (float(m.group(2)), float(m.group(3)), float(m.group(4)))
+            if L_RANGE[0] <= values[0] <= L_RANGE[1] and all(AB_RANGE[0] <= v <= AB_RANGE[1] for v in values[1:]):
+                lab_texts.append(text)
+                lab_values.append(values)
+                lab_kinds.append(m.group(1).lower() == "lab50")
+                continue
+        try:  # the slow path gives the exact error message
+            out[text] = parse_colour(text)
+        except ColourSyntaxError as exc:
+            out[text] = exc
+    if hex_texts:
+        srgb = np.asarray(hex_codes, dtype=np.float64) / 255.0
+        linear = cs.srgb_decode(srgb)
+        lab = cs.lab_from_linear_srgb(linear)
+        for i, text in enumerate(hex_texts):
+            out[text] = ColourSpec(text, "srgb8", _tuple3(linear[i]), _tuple3(srgb[i]), _tuple3(lab[i]))
+    if lab_texts:
+        values = np.asarray(lab_values, dtype=np.float64)
+        d50 = np.asarray(lab_kinds)
+        lab_d65 = values.copy()
+        if d50.any():
+            xyz_d50 = cs.xyz_from_lab(values[d50], cs.WHITE_D50_XYZ)
+            xyz_d65 = cs.bradford_adapt(xyz_d50, cs.WHITE_D50_XYZ, cs.WHITE_D65_XYZ)
+            lab_d65[d50] = cs.lab_from_xyz(xyz_d65, cs.WHITE_D65_XYZ)
+        linear, ok = _map_many_into_gamut(lab_d65)
+        delta_e = np.zeros(len(lab_texts))
+        if not ok.all():
+            delta_e[~ok] = cs.delta_e_2000(lab_d65[~ok], cs.lab_from_linear_srgb(linear[~ok]))
+        srgb = cs.srgb_encode(linear)
+        for i, text in enumerate(lab_texts):
+            out[text] = ColourSpec(text, "lab-d50" if d50[i] else "lab-d65", _tuple3(linear[i]), _tuple3(srgb[i]),
+                                   _tuple3(lab_d65[i]), bool(ok[i]), float(delta_e[i]))
+    return out

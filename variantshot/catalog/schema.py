@@ -42,6 +42,8 @@ RESERVED_FILE_STEMS = frozenset(
 SAFE_NAME_MAX = 96
 _UNSAFE_CHARS = re.compile(r"[^A-Za-z0-9._-]")
 _HEADER_RE = re.compile(r"[^0-9a-z]+")
+# kept as is: safe characters, not starting with '.' or '-', not ending with '.', <= 96 long
+_SAFE_RE = re.compile(r"[A-Za-z0-9_](?:[A-Za-z0-9._-]{0,94}[A-Za-z0-9_-])?")
 
 
 def safe_file_name(text: str) -> str:
@@ -61,16 +63,8 @@ def safe_file_name(text: str) -> str:
     >>> safe_file_name("../x")[:2]
     '_x'
     """
-    stem = text
-    if (
-        stem
-        and not _UNSAFE_CHARS.search(stem)
-        and not stem.startswith((".", "-"))
-        and not stem.endswith(".")
-        and stem.split(".")[0].lower() not in RESERVED_FILE_STEMS
-        and len(stem) <= SAFE_NAME_MAX
-    ):
-        return stem
+    if _SAFE_RE.fullmatch(text) and text.split(".", 1)[0].lower() not in RESERVED_FILE_STEMS:
+        return text
     ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode("ascii")
     mapped = _UNSAFE_CHARS.sub("_", ascii_text).lstrip(".-").rstrip(".")
     mapped = re.sub(r"_+", "_", mapped)[: SAFE_NAME_MAX - 10] or "sku"
@@ -181,6 +175,7 @@ def read_catalog_table(path, *, data: bytes | None = None) -> CatalogTable:
     if errors:
         return table
 
+    text_has_surrogates = _has_surrogates(text)
     reader = csv.reader(io.StringIO(text, newline=""), strict=False, skipinitialspace=True)
     header: list[str] | None = None
     raw_header: list[str] = []
@@ -249,7 +244,7 @@ def read_catalog_table(path, *, data: bytes | None = None) -> CatalogTable:
                     )
                 )
                 table.skipped_lines.add(line)
-        for name, value in row.items():
+        for name, value in row.items() if text_has_surrogates else ():
             if _has_surrogates(value):
                 table.errors.append(
                     InputError(

@@ -32,7 +32,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import InputError, InputErrors
-from .colour import ColourSyntaxError, parse_colour
+from .colour import ColourSyntaxError, parse_colours
 from .finishes import Finish, load_finishes
 from .schema import (
     BACKGROUNDS,
@@ -224,6 +224,7 @@ def validate_rows(table, library: Library) -> tuple[list[Variant], list[InputErr
 
     products = library.products
     finishes = library.finishes
+    colours = parse_colours(row.get("colour", "") for line, row in table.rows if line not in table.skipped_lines)
     first_line_of_sku: dict[str, int] = {}
     safe_owner: dict[str, tuple[str, int]] = {}
     for line, row in table.rows:
@@ -258,10 +259,11 @@ def validate_rows(table, library: Library) -> tuple[list[Variant], list[InputErr
                 _accepted_list(products) or f"a {TEMPLATE_SUFFIX} template in {library.templates_dir}")
         colour = None
         text = row.get("colour", "")
-        try:
-            colour = parse_colour(text)
-        except ColourSyntaxError as exc:
-            err("colour", str(exc), exc.accepted)
+        parsed = colours[text]
+        if isinstance(parsed, ColourSyntaxError):
+            err("colour", str(parsed), parsed.accepted)
+        else:
+            colour = parsed
         if colour is not None and not colour.in_gamut:
             warnings.append(InputError(
                 f"{text!r} is outside the sRGB gamut; mapped to {colour.hex} at the same L* and hue "

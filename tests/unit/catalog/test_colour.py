@@ -129,3 +129,22 @@ def test_lab_syntax_is_forgiving_about_spaces_and_case():
     a = parse_colour("lab(50, 20, -30)")
     for text in ("LAB(50,20,-30)", "lab( 50 , 20 , -30 )", "lab(50 20 -30)", "Lab(5e1, 20.0, -3e1)"):
         assert parse_colour(text).linear == a.linear
+
+
+def test_batch_parser_agrees_with_the_single_parser():
+    from variantshot.catalog.colour import parse_colours
+
+    texts = ["#3a7bd5", "#ffffff", "lab(50, 20, -30)", "lab50(52, 48, 38)", "lab(60, 120, 0)", "lab50(90, -100, 100)",
+             "#fff", "lab(101, 0, 0)", "red", " #00ff00 ", "LAB(5e1,0,0)"]
+    batch = parse_colours(texts)
+    for t in texts:
+        try:
+            single = parse_colour(t)
+        except ColourSyntaxError as exc:
+            assert isinstance(batch[t], ColourSyntaxError) and str(batch[t]) == str(exc)
+            continue
+        got = batch[t]
+        assert got.space == single.space and got.in_gamut == single.in_gamut
+        np.testing.assert_allclose(got.linear, single.linear, atol=1e-6)
+        np.testing.assert_allclose(got.lab, single.lab, atol=1e-9)
+        assert got.delta_e_mapping == pytest.approx(single.delta_e_mapping, abs=1e-4)
