@@ -19,6 +19,11 @@ _ENTRY_POINTS = {
     "load_gltf": "variantshot.geometry.gltf:load_gltf",
     "Scene": "variantshot.geometry.scene:Scene",
     "build_bvh": "variantshot.geometry.bvh:build_bvh",
+    "read_catalog": "variantshot.catalog.validate:read_catalog",
+    "check_catalog": "variantshot.catalog.validate:check_catalog",
+    "expand_catalog": "variantshot.catalog.expand:expand_catalog",
+    "plan_shots": "variantshot.batch.plan:plan_shots",
+    "frame_angle": "variantshot.catalog.angles:frame_angle",
 }
 
 __all__ = ["__version__", *_ENTRY_POINTS]

@@ -119,6 +119,16 @@ def _rig_definition(name: str, library):
         return name
 
 
+def _settings_background(settings) -> str | None:
+    """The batch background carried by the settings (an OutputSpec-like ``background``), if any."""
+    items = settings if isinstance(settings, (tuple, list)) else (settings,)
+    for item in items:
+        bg = item.get("background") if isinstance(item, dict) else getattr(item, "background", None)
+        if isinstance(bg, str) and bg:
+            return bg
+    return None
+
+
 def default_rig_name() -> str:
     try:
         from ..geometry.rig import DEFAULT_RIG
@@ -143,6 +153,8 @@ def plan_shots(catalog, out_dir, settings=None, *, rig: str | None = None, templ
         it renders with, or every shot looks changed.
     rig : str, optional
         Rig for rows whose ``rig`` cell is empty (default: the package's default rig).
+        Likewise a row's empty ``background`` cell takes the ``background`` the settings carry
+        (an ``OutputSpec``), else ``white``.
     templates_dir : str or Path, optional
         See :func:`variantshot.catalog.validate.find_templates_dir`.
 
@@ -167,6 +179,7 @@ def plan_shots(catalog, out_dir, settings=None, *, rig: str | None = None, templ
         report = check_expanded(catalog, progress=progress)
     library = report.catalog.library
     default_rig = rig or default_rig_name()
+    batch_background = _settings_background(settings) or "white"
     manifest = _read_manifest_shots(out_dir)
     renderer = f"variantshot {__version__}"
     rig_defs: dict[str, object] = {}
@@ -202,7 +215,7 @@ def plan_shots(catalog, out_dir, settings=None, *, rig: str | None = None, templ
                 status = "changed"
             shots.append(Shot(
                 id=sid, sku=scene.sku, safe_sku=scene.safe_name, product=v.product, colourway=v.colourway,
-                finish=v.finish, angle=angle, background=v.background, rig=rig_name,
+                finish=v.finish, angle=angle, background=v.row.get("background") or batch_background, rig=rig_name,
                 material_variant=scene.material_variant, scene=f"scenes/{scene.scene_file}", key=key,
                 status=status, colour_text=v.colour.text, colour_lab_d65=tuple(v.colour.lab),
                 colour_in_gamut=v.colour.in_gamut, catalog_file=v.file, catalog_row=v.line,
