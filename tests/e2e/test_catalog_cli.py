@@ -99,3 +99,31 @@ def test_demo_models_are_small_and_rebuildable(repo_dir, tmp_path):
                 "the committed model is what the script builds"
         assert (tmp_path / "templates" / f"{name}.gltf.j2").read_text() == \
             (repo_dir / "templates" / f"{name}.gltf.j2").read_text()
+
+
+def test_check_warns_about_out_of_gamut_colours_and_unrendered_extensions(repo_dir, tmp_path):
+    # a user finish folder next to the catalog adds a finish with an extension no renderer knows
+    (tmp_path / "finishes").mkdir()
+    (tmp_path / "finishes" / "glitter.toml").write_text(
+        "[material.pbrMetallicRoughness]\nroughnessFactor = 0.5\n[material.extensions.VS_materials_glitter]\ndensity = 1.0\n")
+    path = tmp_path / "c.csv"
+    path.write_text('sku,product,colour,finish\nG-1,mug,"lab(60, 120, 0)",satin\nG-2,mug,#445566,glitter\n')
+    result = run("check", path, "--templates", repo_dir / "templates")
+    assert result.exit_code == 0, result.output
+    warnings = [line for line in result.stderr.splitlines() if line.startswith("warning: ")]
+    assert any(line.startswith(f"warning: {path}:2:colour: 'lab(60, 120, 0)' is outside the sRGB gamut") for line in warnings), warnings
+    assert any(line.startswith(f"warning: {path}:3:finish: finish 'glitter' uses VS_materials_glitter") for line in warnings), warnings
+
+
+def test_check_reports_a_broken_model(repo_dir, tmp_path):
+    import shutil
+
+    shutil.copytree(repo_dir / "templates", tmp_path / "templates")
+    shutil.copytree(repo_dir / "catalog", tmp_path / "catalog")
+    model = tmp_path / "catalog" / "models" / "mug.gltf"
+    doc = json.loads(model.read_text())
+    doc["buffers"][0]["byteLength"] += 4
+    model.write_text(json.dumps(doc))
+    result = run("check", tmp_path / "catalog" / "demo.csv")
+    assert result.exit_code == 2
+    assert any("mug.gltf: /buffers/0: byteLength" in line for line in result.stderr.splitlines()), result.stderr

@@ -249,8 +249,11 @@ def render_template(product: Product, library: Library, variant: Variant) -> str
 
 
 class _BufferCache:
+    """Per-run memo: file bytes, and world positions / framed cameras per geometry."""
+
     def __init__(self):
         self.files: dict[Path, bytes | None] = {}
+        self.geometry: dict[str, tuple] = {}
 
     def read(self, path: Path) -> bytes | None:
         path = path.resolve()
@@ -335,7 +338,16 @@ def expand_variant(variant: Variant, library: Library, *, cache: _BufferCache | 
         if issues:
             raise InputErrors([InputError(f"{issue} ({where})", file=tfile,
                                           accepted="glTF 2.0 (Khronos specification)") for issue in issues])
-        positions = world_positions(gltf, buffers)
+        # positions and framing depend only on the geometry: memoise them per run
+        geo_key = hashlib.sha256(json.dumps(
+            [str(base_dir), gltf.get("scene", 0), gltf.get("scenes"), gltf.get("nodes"),
+             [[{k: v for k, v in p.items() if k != "material"} for p in m.get("primitives", [])]
+              for m in gltf.get("meshes", [])],
+             gltf.get("accessors"), gltf.get("bufferViews"), gltf.get("buffers"), fill_frac, yfov_rad],
+            sort_keys=True, default=str).encode()).hexdigest()
+        if geo_key not in cache.geometry:
+            cache.geometry[geo_key] = (world_positions(gltf, buffers), {})
+        positions, framed = cache.geometry[geo_key]
         if positions.shape[0] == 0:
             raise InputErrors([InputError(f"the scene draws no triangles ({where})", file=tfile,
                                           accepted="a scene whose default scene has mesh nodes")])
@@ -356,8 +368,11 @@ def expand_variant(variant: Variant, library: Library, *, cache: _BufferCache | 
             if a in existing:
                 cameras[a] = _node_world_matrix(gltf, existing[a])
                 continue
-            world_from_camera = angle_lib.frame_angle(positions, a, fill_frac=fill_frac, yfov_rad=yfov_rad)
-            cam, node = angle_lib.camera_gltf(a, world_from_camera, positions, yfov_rad=yfov_rad)
+            if a not in framed:
+                m = angle_lib.frame_angle(positions, a, fill_frac=fill_frac, yfov_rad=yfov_rad)
+                framed[a] = (m, *angle_lib.camera_gltf(a, m, positions, yfov_rad=yfov_rad))
+            world_from_camera, cam, node = framed[a]
+            cam, node = copy.deepcopy(cam), dict(node)
             gltf.setdefault("cameras", []).append(cam)
             node["camera"] = len(gltf["cameras"]) - 1
             gltf.setdefault("nodes", []).append(node)
@@ -408,6 +423,26 @@ def _node_world_matrix(gltf: dict, node_index: int) -> np.ndarray:
     return m
 
 
+def check_models(catalog: Catalog) -> list[InputError]:
+    """Structural problems of the model files of the products the catalog uses."""
+    errors = []
+    used = {v.product for v in catalog.variants}
+    for name in sorted(used):
+        product = catalog.library.products[name]
+        if product.model is None:
+            continue
+        where = display_path(product.model)
+        try:
+            doc = json.loads(product.model.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+            errors.append(InputError(f"model of product {name!r} cannot be read as glTF JSON: {exc}", file=where,
+                                     accepted="a glTF 2.0 .gltf file"))
+            continue
+        for issue in check_gltf(doc, product.model.parent):
+            errors.append(InputError(f"{issue}", file=where, accepted="glTF 2.0 (Khronos specification)"))
+    return errors
+
+
 def check_expanded(catalog: Catalog, *, supported_extensions=None, progress=None) -> CheckReport:
     """Expand every variant of a checked catalog in memory and collect every problem.
 
@@ -422,7 +457,7 @@ def check_expanded(catalog: Catalog, *, supported_extensions=None, progress=None
     """
     cache = _BufferCache()
     scenes: list[ExpandedScene] = []
-    errors: list[InputError] = []
+    errors: list[InputError] = check_models(catalog)
     grouped: dict[tuple, list] = {}
     total = len(catalog.variants)
     for k, variant in enumerate(catalog.variants):
