@@ -330,6 +330,13 @@ def expand_variant(variant: Variant, library: Library, *, cache: _BufferCache | 
         if used or gltf.get("extensionsUsed"):
             gltf["extensionsUsed"] = sorted(set(used) | set(gltf.get("extensionsUsed", [])))
         resources = _external_resources(gltf, base_dir)
+        allowed = [base_dir.resolve(), library.templates_dir.resolve()]
+        outside = [(k, p) for k, p in resources.items() if not any(_inside(p, folder) for folder in allowed)]
+        if outside:
+            raise InputErrors([InputError(
+                f"/{kind}/{i}: uri {gltf[kind][i]['uri']!r} points outside the model and templates folders ({where})",
+                file=tfile, accepted=f"relative URIs of files in {display_path(base_dir)} or "
+                f"{display_path(library.templates_dir)}, or data: URIs") for (kind, i), _ in outside])
         buffers = load_buffers(gltf, base_dir=None)  # data URIs; files below
         for (kind, i), path in resources.items():
             if kind == "buffers":
@@ -354,11 +361,14 @@ def expand_variant(variant: Variant, library: Library, *, cache: _BufferCache | 
         existing = camera_nodes(gltf)
         angles = variant.angles
         errors = []
+        from_products = not variant.row.get("angles")  # the product's default angles
         for a in angles:
             if a not in existing and a not in angle_lib.ANGLE_PRESETS:
                 choices = sorted(set(angle_lib.ANGLE_PRESETS) | set(existing))
-                errors.append(InputError(unknown_name_message("angle", a, choices), file=variant.file,
-                                         row=variant.line, column="angles",
+                message = unknown_name_message("angle", a, choices)
+                if from_products:
+                    message += f" (a default angle of product {variant.product!r} in products.toml)"
+                errors.append(InputError(message, file=variant.file, row=variant.line, column="angles",
                                          accepted=", ".join(choices) + " (';'-separated)"))
         if errors:
             raise InputErrors(errors)

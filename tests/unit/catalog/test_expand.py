@@ -218,3 +218,13 @@ def test_template_outside_the_templates_folder_is_refused(tmp_path, repo_dir):
 
 def test_input_error_is_the_base_of_every_report():
     assert issubclass(InputErrors, InputError)
+
+
+@pytest.mark.parametrize("uri", ["../../../../../../etc/hostname", "/etc/hostname", "..%2F..%2Fsecret.bin"])
+def test_buffer_uris_cannot_reach_outside_the_model_and_template_folders(tmp_path, repo_dir, uri):
+    (tmp_path / "secret.bin").write_bytes(TRIANGLE)
+    tdir = make_library(tmp_path, repo_dir, {"tri.gltf.j2": SCENE}, buffer_uri=uri)
+    path = write_catalog(tmp_path, "T-1,tri,#ff8000,gloss,n\n")
+    lines = expand_errors(path, tdir, tmp_path / "out")
+    assert any("/buffers/0: uri" in line and "points outside the model and templates folders" in line
+               for line in lines), lines

@@ -109,7 +109,7 @@ def test_spaces_bom_crlf_and_extra_columns_are_accepted(tmp_path, repo_dir):
 @pytest.mark.parametrize("sku", ["../x", "a/b", "a\\b", "CON", "nul.txt", "..", ".hidden", "x" * 300, "é/ü", "a:b*c?"])
 def test_unsafe_skus_map_to_safe_names(sku):
     name = safe_file_name(sku)
-    assert name and "/" not in name and "\\" not in name and ".." not in name.split("-")[0][:2]
+    assert name and "/" not in name and "\\" not in name
     assert not name.startswith((".", "-")) and len(name) <= 96
     assert name.split(".")[0].lower() not in {"con", "nul"}
     assert all(c.isascii() and (c.isalnum() or c in "._-") for c in name)
