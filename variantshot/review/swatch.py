@@ -230,7 +230,8 @@ def calibrate_exposure_ev(*, rig=None, env=None, grey: float = CALIBRATION_GREY,
     return math.log2(grey / y)
 
 
-def _rig_swatch_uncached(colour_rgb_linear, rig, exposure_ev, spp, size_px, seed, threads, tone):
+def _rig_swatch_uncached(colour_rgb_linear, rig, exposure_ev, spp, size_px, seed, threads, tone,
+                         denoise):
     from ..geometry.rig import build_rig
     from ..geometry.scene import Camera
     from ..transport.environment import make_environment
@@ -245,14 +246,26 @@ def _rig_swatch_uncached(colour_rgb_linear, rig, exposure_ev, spp, size_px, seed
     env = make_environment(tuple(built.environment_linear), rotation_rad=built.yaw_rad)
     return render_swatch(colour_rgb_linear, rig=built.scene, env=env, exposure_ev=exposure_ev,
                          tone=tone, centre=(0.0, 0.5, 0.0), normal=(0.0, 0.0, 1.0), size_m=1.0,
-                         size_px=size_px, spp=spp, seed=seed, threads=threads)
+                         size_px=size_px, spp=spp, seed=seed, threads=threads,
+                         denoise=_denoiser() if denoise else None)
+
+
+def _denoiser():
+    """The batch's denoiser (``imaging.denoise.denoise_film``), or None when it cannot run here."""
+    try:
+        from ..imaging import denoise as _dn
+    except ImportError:
+        return None
+    available = getattr(_dn, "is_available", lambda: True)
+    return _dn.denoise_film if available() else None
 
 
 _RIG_SWATCH_CACHE: dict = {}
 
 
 def rig_swatch(colour_rgb_linear, rig, exposure_ev: float, *, spp: int = 64, size_px: int = 16,
-               seed: int = 0, threads: int | None = None, tone: str = "none") -> SwatchResult:
+               seed: int = 0, threads: int | None = None, tone: str = "none",
+               denoise: bool = False) -> SwatchResult:
     """The swatch of a colour in a studio rig, at the rig's calibrated exposure (cached).
 
     The card stands where a product's centre would, facing the front camera, in the rig built
@@ -270,6 +283,9 @@ def rig_swatch(colour_rgb_linear, rig, exposure_ev: float, *, spp: int = 64, siz
         The shots' exposure for this rig.
     spp, size_px, seed, threads, tone :
         As :func:`render_swatch`.
+    denoise : bool
+        Run the batch's denoiser (``imaging.denoise.denoise_film``) as the shots do when their
+        quality preset denoises; ignored when the denoiser cannot run here.
 
     Returns
     -------
@@ -279,12 +295,12 @@ def rig_swatch(colour_rgb_linear, rig, exposure_ev: float, *, spp: int = 64, siz
 
     spec = load_rig(rig)
     rgb = tuple(round(float(v), 6) for v in np.asarray(colour_rgb_linear, dtype=np.float64).reshape(3))
-    key = (spec.digest(), rgb, round(float(exposure_ev), 6), spp, size_px, seed, tone)
+    key = (spec.digest(), rgb, round(float(exposure_ev), 6), spp, size_px, seed, tone, bool(denoise))
     if key not in _RIG_SWATCH_CACHE:
         if len(_RIG_SWATCH_CACHE) > 512:
             _RIG_SWATCH_CACHE.clear()
         _RIG_SWATCH_CACHE[key] = _rig_swatch_uncached(rgb, spec, exposure_ev, spp, size_px, seed,
-                                                      threads, tone)
+                                                      threads, tone, denoise)
     return _RIG_SWATCH_CACHE[key]
 
 
