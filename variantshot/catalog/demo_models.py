@@ -23,7 +23,6 @@ from __future__ import annotations
 
 import json
 import math
-import struct
 import sys
 from pathlib import Path
 
@@ -122,7 +121,7 @@ def lathe(profile, segments: int = 48) -> Mesh:
             cc, d = (i + 1) * cols + j, (i + 1) * cols + j + 1
             # winding: counter-clockwise seen from outside
             if r[i] > 1e-12:
-                tris.append((a, b, d) if True else None)
+                tris.append((a, b, d))
             if r[i + 1] > 1e-12:
                 tris.append((a, d, cc))
     idx = np.array(tris, dtype=np.int64)
@@ -190,8 +189,8 @@ def rounded_box(half_extents, radius: float, n: int = 8) -> Mesh:
         base = len(pos)
         uu = _rim_grid(k, rim[axis_u])
         vv = _rim_grid(k, rim[axis_v])
-        for vi, v in enumerate(vv):
-            for ui, u in enumerate(uu):
+        for v in vv:
+            for u in uu:
                 q = np.zeros(3)
                 q[axis_u], q[axis_v], q[axis_n] = u * h[axis_u], v * h[axis_v], sign * h[axis_n]
                 c = np.clip(q, -inner, inner)
@@ -439,5 +438,3 @@ def main(argv=None) -> int:
 
 if __name__ == "__main__":
     raise SystemExit(main())
-
-_ = struct  # struct kept for readers who pack by hand; numpy does it here

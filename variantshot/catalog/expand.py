@@ -29,7 +29,9 @@ The output must parse as JSON and pass :func:`~.gltf_check.check_gltf`; the expa
   ``*`` gives one scene per entry, with SKU ``<sku>-<entry name>``);
 * adds one perspective camera node per preset angle, named after the angle, auto-framed on the
   product's vertices (:func:`~.angles.frame_angle`), unless the template already has a camera
-  node of that name, which is kept as written;
+  node of that name, which is kept as written; camera nodes of the template are extra angles:
+  a row with an empty ``angles`` cell gets the product's default angles *plus* every template
+  camera (by node name), a row that lists its angles gets exactly those;
 * sets ``extensionsUsed`` to every extension the scene uses, and records the variant in
   ``asset.extras.variantshot`` (sku, product, finish, colourway, colour with its Lab, angles,
   background, rig) for the batch and QA.
@@ -362,6 +364,8 @@ def expand_variant(variant: Variant, library: Library, *, cache: _BufferCache | 
         angles = variant.angles
         errors = []
         from_products = not variant.row.get("angles")  # the product's default angles
+        if from_products:  # the template's own cameras are extra angles of every such row
+            angles = tuple(dict.fromkeys([*angles, *existing]))
         for a in angles:
             if a not in existing and a not in angle_lib.ANGLE_PRESETS:
                 choices = sorted(set(angle_lib.ANGLE_PRESETS) | set(existing))
@@ -483,7 +487,7 @@ def check_expanded(catalog: Catalog, *, supported_extensions=None, progress=None
             grouped.setdefault((e.file, e.row, e.message.rsplit(" (catalog ", 1)[0]), []).append((e, variant))
         if progress is not None:
             progress(k + 1, total, variant.sku)
-    for (file, row, _msg), items in grouped.items():
+    for items in grouped.values():
         first, _ = items[0]
         if len(items) > 1:
             first.message += f" and {len(items) - 1} more row(s)"

@@ -232,7 +232,7 @@ def validate_rows(table, library: Library) -> tuple[list[Variant], list[InputErr
             continue
         row_errors_before = len(errors)
 
-        def err(column, message, accepted=None):
+        def err(column, message, accepted=None, line=line):
             errors.append(InputError(message, file=file, row=line, column=column, accepted=accepted))
 
         sku = row.get("sku", "")

@@ -192,6 +192,10 @@ def test_template_camera_nodes_are_extra_angles(tmp_path, repo_dir):
     np.testing.assert_allclose(scene.cameras["macro"][:3, 3], [0.2, 0.2, 1.0])
     # the template's own camera is kept, one camera is added for the preset
     assert len(scene.gltf["cameras"]) == 2
+    # with an empty angles cell: the product's default angles plus the template's cameras
+    path.write_text("sku,product,colour,finish,note,angles\nT-1,tri,#ff8000,gloss,n,\n")
+    (scene,) = check_expanded(read_catalog(path, templates_dir=tdir)).scenes
+    assert scene.angles == ("front", "three-quarter-left", "macro")
 
 
 def test_unsupported_extension_is_flagged_not_flattened(tmp_path, repo_dir):
