@@ -15,7 +15,7 @@ import numpy as np
 
 # Split parameters of the binned SAH build (see bvh_kernels.build_binary).
 MAX_LEAF = 4
-N_BINS = 16
+N_BINS = 32
 TRAVERSAL_COST = 1.0
 
 

@@ -154,15 +154,15 @@ def _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz):
     """
     base = 9 * i
     # vertices relative to the ray origin, in permuted axis order
-    ax = tris_f[base + kx] - okx
-    ay = tris_f[base + ky] - oky
-    az = tris_f[base + kz] - okz
-    bx = tris_f[base + 3 + kx] - okx
-    by = tris_f[base + 3 + ky] - oky
-    bz = tris_f[base + 3 + kz] - okz
-    cx = tris_f[base + 6 + kx] - okx
-    cy = tris_f[base + 6 + ky] - oky
-    cz = tris_f[base + 6 + kz] - okz
+    ax = _get(tris_f, base + kx) - okx
+    ay = _get(tris_f, base + ky) - oky
+    az = _get(tris_f, base + kz) - okz
+    bx = _get(tris_f, base + 3 + kx) - okx
+    by = _get(tris_f, base + 3 + ky) - oky
+    bz = _get(tris_f, base + 3 + kz) - okz
+    cx = _get(tris_f, base + 6 + kx) - okx
+    cy = _get(tris_f, base + 6 + ky) - oky
+    cz = _get(tris_f, base + 6 + kz) - okz
     # shear so the ray is the +z axis
     ax = ax - sx * az
     ay = ay - sy * az
@@ -174,15 +174,14 @@ def _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz):
     u = np.float64(cx) * np.float64(by) - np.float64(cy) * np.float64(bx)
     v = np.float64(ax) * np.float64(cy) - np.float64(ay) * np.float64(cx)
     w = np.float64(bx) * np.float64(ay) - np.float64(by) * np.float64(ax)
-    if (u < 0.0 or v < 0.0 or w < 0.0) and (u > 0.0 or v > 0.0 or w > 0.0):
+    e_min = min(min(u, v), w)
+    e_max = max(max(u, v), w)
+    if (e_min < 0.0) & (e_max > 0.0):
         return False, 0.0, 0.0, 0.0
     det = u + v + w
-    if det == 0.0:
-        return False, 0.0, 0.0, 0.0
+    t_scaled = u * np.float64(sz * az) + v * np.float64(sz * bz) + w * np.float64(sz * cz)
+    # det == 0 (degenerate or edge-on) gives t = +-inf or NaN, which fails every range test
     inv_det = 1.0 / det
-    t_scaled = (
-        u * np.float64(sz * az) + v * np.float64(sz * bz) + w * np.float64(sz * cz)
-    )
     return True, t_scaled * inv_det, v * inv_det, w * inv_det
 
 
@@ -229,6 +228,44 @@ def _node_test_scalar(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo,
                  (nodes_f[fz + 3] - oz) * ivz) * robust, t_hi)
     mask = (1 if n0 <= f0 else 0) | (2 if n1 <= f1 else 0) | (4 if n2 <= f2 else 0) | (8 if n3 <= f3 else 0)
     return n0, n1, n2, n3, mask
+
+
+if numba.config.DISABLE_JIT:
+
+    def _get(arr, index):
+        return arr[index]
+
+    def _set(arr, index, value):
+        arr[index] = value
+
+else:
+
+    @intrinsic
+    def _get(typingctx, arr, index):
+        """``arr[index]`` for a known non-negative index: numba's negative-index wrap-around
+        costs an add and a select per access, and these accesses are the hot loop."""
+        sig = arr.dtype(arr, index)
+
+        def codegen(context, builder, signature, args):
+            a = context.make_array(signature.args[0])(context, builder, args[0])
+            idx = context.cast(builder, args[1], signature.args[1], types.int64)
+            return builder.load(builder.gep(a.data, [idx]))
+
+        return sig, codegen
+
+    @intrinsic
+    def _set(typingctx, arr, index, value):
+        """``arr[index] = value`` for a known non-negative index (see :func:`_get`)."""
+        sig = types.none(arr, index, value)
+
+        def codegen(context, builder, signature, args):
+            a = context.make_array(signature.args[0])(context, builder, args[0])
+            idx = context.cast(builder, args[1], signature.args[1], types.int64)
+            val = context.cast(builder, args[2], signature.args[2], signature.args[0].dtype)
+            builder.store(val, builder.gep(a.data, [idx]))
+            return context.get_dummy_value()
+
+        return sig, codegen
 
 
 if numba.config.DISABLE_JIT:
@@ -368,15 +405,15 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
                         if mask & (1 << k):
                             tn = n0 if k == 0 else (n1 if k == 1 else (n2 if k == 2 else n3))
                             j = sp
-                            while j > first and stack_t[j - 1] < tn:
-                                stack_ref[j] = stack_ref[j - 1]
-                                stack_t[j] = stack_t[j - 1]
+                            while j > first and _get(stack_t, j - 1) < tn:
+                                _set(stack_ref, j, _get(stack_ref, j - 1))
+                                _set(stack_t, j, _get(stack_t, j - 1))
                                 j -= 1
-                            stack_ref[j] = nodes_i[c + k]
-                            stack_t[j] = tn
+                            _set(stack_ref, j, _get(nodes_i, c + k))
+                            _set(stack_t, j, tn)
                             sp += 1
                     sp -= 1
-                    ref = stack_ref[sp]
+                    ref = _get(stack_ref, sp)
                     continue
             else:
                 v = ~ref
@@ -384,7 +421,7 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
                 stop = start + (v & 7)
                 for i in range(start, stop):
                     hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
-                    if hit and t > t_lo and t < t_hi:
+                    if hit & (t > t_lo) & (t < t_hi):
                         t_hi = np.float32(t)
                         t_best = np.float32(t)
                         tri_best = i
@@ -394,14 +431,14 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
             found = False
             while sp > 0:
                 sp -= 1
-                if stack_t[sp] <= t_hi:
+                if _get(stack_t, sp) <= t_hi:
                     found = True
                     break
             if not found:
                 break
-            ref = stack_ref[sp]
+            ref = _get(stack_ref, sp)
     if tri_best >= 0:
-        tri_best = tri_ids[tri_best]
+        tri_best = _get(tri_ids, tri_best)
     return t_best, tri_best, b1_best, b2_best
 
 
@@ -444,10 +481,10 @@ def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tma
                     c = 4 * ref
                     for k in range(4):
                         if mask & (1 << k):
-                            stack_ref[sp] = nodes_i[c + k]
+                            _set(stack_ref, sp, _get(nodes_i, c + k))
                             sp += 1
                     sp -= 1
-                    ref = stack_ref[sp]
+                    ref = _get(stack_ref, sp)
                     continue
             else:
                 v = ~ref
@@ -455,7 +492,7 @@ def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tma
                 stop = start + (v & 7)
                 for i in range(start, stop):
                     hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
-                    if hit and t > t_lo and t < t_hi:
+                    if hit & (t > t_lo) & (t < t_hi):
                         hit_any = True
                         break
                 if hit_any:
@@ -463,7 +500,7 @@ def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tma
             if sp == 0:
                 break
             sp -= 1
-            ref = stack_ref[sp]
+            ref = _get(stack_ref, sp)
     return hit_any
 
 
