@@ -411,3 +411,289 @@ def _run_qa(task: ShotTask, primary: ImageOut, coverage, film) -> dict | None:
     if hasattr(result, "to_dict"):
         return result.to_dict()
     return dataclasses.asdict(result)
+
+
+# --------------------------------------------------------------------------- the batch
+
+
+@dataclass
+class BatchReport:
+    """What a batch did.
+
+    Attributes
+    ----------
+    out_dir : Path
+    planned : int
+        Shots in the plan (after ``only``).
+    rendered : list of str
+        Shot ids rendered in this run.
+    skipped : list of str
+        Shot ids already up to date.
+    failed : list of (str, str)
+        ``(shot id, error)`` of shots that could not be rendered.
+    qa_failed : list of str
+        Rendered shots whose QA verdict is ``fail``.
+    seconds : float
+    sheets : list of Path
+    """
+
+    out_dir: Path
+    planned: int = 0
+    rendered: list = field(default_factory=list)
+    skipped: list = field(default_factory=list)
+    failed: list = field(default_factory=list)
+    qa_failed: list = field(default_factory=list)
+    seconds: float = 0.0
+    sheets: list = field(default_factory=list)
+
+    @property
+    def ok(self) -> bool:
+        return not self.failed and not self.qa_failed
+
+
+_MIME = {".png": "image/png", ".jpg": "image/jpeg", ".jpeg": "image/jpeg", ".webp": "image/webp", ".ktx2": "image/ktx2"}
+
+
+def self_contained_gltf(expanded) -> bytes:
+    """An expanded scene as glTF JSON bytes with every external buffer and image embedded as a
+    ``data:`` URI, so a worker needs no file system (local runs and cluster runs alike)."""
+    import base64
+    import copy
+    import json
+
+    doc = copy.deepcopy(expanded.gltf)
+    for (kind, i), src in sorted(expanded.resources.items()):
+        data = Path(src).read_bytes()
+        mime = "application/octet-stream" if kind == "buffers" else _MIME.get(Path(src).suffix.lower(), "application/octet-stream")
+        doc[kind][i]["uri"] = f"data:{mime};base64," + base64.b64encode(data).decode("ascii")
+    return json.dumps(doc, separators=(",", ":")).encode("utf-8")
+
+
+def _failed_key(variant, template_path, settings, angle) -> str:
+    from .cache import shot_key
+
+    files = [template_path] if template_path is not None and Path(template_path).is_file() else []
+    return shot_key(renderer_version=f"variantshot {__version__}", template_files=files, row=variant.row,
+                    model_files=[], rig_name=variant.rig or "", rig_definition="", settings=settings,
+                    angle=angle)
+
+
+def _entry(shot, *, background, key, status, error=None, images=(), qa=None, seconds=0.0) -> dict:
+    from .manifest import now_iso, sha256_hex
+
+    recs = [{"path": im.path, "format": im.format, "width": im.width, "height": im.height,
+             "bytes": len(im.data), "sha256": sha256_hex(im.data)} for im in images]
+    primary = recs[0]["path"] if recs else f"shots/{shot['id']}.png"
+    return {
+        "id": shot["id"], "sku": shot["sku"], "product": shot["product"], "colourway": shot["colourway"],
+        "finish": shot["finish"], "angle": shot["angle"], "background": background, "image": primary,
+        "images": recs, "key": key, "status": status, "error": error,
+        "qa": qa if qa is not None else {"status": "fail" if status == "failed" else "warn", "checks": []},
+        "content_hash": recs[0]["sha256"] if recs else None, "rendered_at": now_iso(), "seconds": round(float(seconds), 3),
+    }
+
+
+def render_batch(
+    catalog,
+    out_dir,
+    *,
+    quality="draft",
+    output: OutputSpec | None = None,
+    background: str | None = None,
+    rig: str | None = None,
+    key_to_fill: float | None = None,
+    rotation_deg: float | None = None,
+    only=None,
+    force: bool = False,
+    executor=None,
+    workers: int = 1,
+    threads: int | None = None,
+    templates_dir=None,
+    sheet_formats=("png",),
+    progress=None,
+    on_shot=None,
+) -> BatchReport:
+    """Render every out-of-date shot of a catalog into ``out_dir``.
+
+    Parameters
+    ----------
+    catalog : path
+        The catalog CSV.
+    out_dir : path
+        Output folder: ``shots/``, ``scenes/``, ``manifest.json``, ``sheets/``.
+    quality : str or Quality
+        ``draft``, ``proof``, ``final`` or a :class:`~variantshot.batch.quality.Quality`.
+    output : OutputSpec, optional
+        Formats and sizes (and the batch's background); default one PNG on white.
+    background : str, optional
+        Overrides ``output.background`` for rows whose ``background`` cell is empty.
+    rig : str, optional
+        Rig for rows whose ``rig`` cell is empty (default: ``soft-even``).
+    key_to_fill, rotation_deg : float, optional
+        Override every rig's ratio and rotation (they then enter the shot keys).
+    only : list of str, optional
+        Glob patterns on shot ids; other shots are neither rendered nor touched.
+    force : bool
+        Render the selected shots even when up to date.
+    executor : object with ``map(fn, tasks)``, optional
+        Default :class:`~variantshot.batch.executors.LocalExecutor` with ``workers``.
+    sheet_formats : tuple of str
+        Contact sheets built at the end (``()``: none).
+    progress : callable, optional
+        ``progress(done, total, label)``: shots finished, shots to render, the shot just done.
+    on_shot : callable, optional
+        ``on_shot(entry)`` with each finished shot's manifest entry (rendered or failed).
+
+    Returns
+    -------
+    BatchReport
+
+    Raises
+    ------
+    InputErrors
+        The catalog itself is invalid (nothing rendered, nothing overwritten).
+    LockedError
+        Another live run holds ``out_dir``'s lock.
+    """
+    from .._atomic import remove_stale_temporaries
+    from ..catalog.expand import CheckReport, _BufferCache, expand_variant, write_scenes
+    from ..catalog.validate import read_catalog
+    from .executors import LocalExecutor
+    from .lock import acquire_lock
+    from .manifest import load_manifest, save_manifest
+    from .plan import batch_settings, default_rig_name, plan_shots, shot_id
+    from .quality import match_only, quality_preset
+
+    started = time.perf_counter()
+    out = Path(out_dir)
+    q = quality_preset(quality)
+    output = output or OutputSpec()
+    if background is not None:
+        output = output.replace(background=background)
+    settings = batch_settings(q, output)
+    if key_to_fill is not None or rotation_deg is not None:
+        settings = (*settings, {"key_to_fill": key_to_fill, "rotation_deg": rotation_deg})
+    report = BatchReport(out_dir=out)
+
+    # Read the catalog before taking the lock: a bad catalog changes nothing in ``out``.
+    cat = read_catalog(catalog, templates_dir=templates_dir)
+    with acquire_lock(out):
+        removed = remove_stale_temporaries(out)
+        if removed:
+            log.info("removed %d temporary file(s) left by an interrupted run", removed)
+        library = cat.library
+        cache = _BufferCache()
+        scenes, broken = [], []
+        for v in cat.variants:
+            try:
+                scenes.extend(expand_variant(v, library, cache=cache))
+            except InputError as exc:
+                broken.append((v, exc))
+        shots = plan_shots(CheckReport(catalog=cat, scenes=scenes, warnings=[]), out, settings, rig=rig)
+        if scenes:
+            write_scenes(scenes, out)
+        by_sku = {s.safe_name: s for s in scenes}
+        manifest = load_manifest(out)
+
+        failed_shots = []
+        for v, exc in broken:
+            msg = exc.format() if isinstance(exc, InputError) else str(exc)
+            template = library.products[v.product].template if v.product in library.products else None
+            for angle in v.angles:
+                sid = shot_id(v.safe_sku, angle)
+                failed_shots.append(({"id": sid, "sku": v.sku, "product": v.product, "colourway": v.colourway,
+                                      "finish": v.finish, "angle": angle}, v, msg, _failed_key(v, template, settings, angle)))
+        planned_ids = {s.id for s in shots} | {f[0]["id"] for f in failed_shots}
+        if not only:
+            for stale in set(manifest["shots"]) - planned_ids:
+                del manifest["shots"][stale]  # shots no longer in the catalog
+        if only:
+            shots = [s for s in shots if match_only(s.id, only)]
+            failed_shots = [f for f in failed_shots if match_only(f[0]["id"], only)]
+        todo = [s for s in shots if force or s.status != "up-to-date"]
+        report.skipped = [s.id for s in shots if s not in todo]
+        report.planned = len(shots) + len(failed_shots)
+        total = len(todo) + len(failed_shots)
+        done = 0
+
+        def finish(entry):
+            nonlocal done
+            manifest["shots"][entry["id"]] = entry
+            save_manifest(out, manifest)
+            done += 1
+            if on_shot is not None:
+                on_shot(entry)
+            if progress is not None:
+                progress(done, total, entry["id"])
+
+        for info, v, msg, key in failed_shots:
+            bgv = (v.row.get("background") or output.background)
+            report.failed.append((info["id"], msg))
+            finish(_entry(info, background=bgv, key=key, status="failed", error=msg))
+        if progress is not None and total:
+            progress(done, total, None)
+
+        rig_specs: dict[str, RigSpec] = {}
+
+        def rig_for(name):
+            if name not in rig_specs:
+                source = library.rigs.get(name, name) if getattr(library, "rigs", None) else name
+                rig_specs[name] = load_rig(source).with_settings(key_to_fill=key_to_fill, rotation_deg=rotation_deg)
+            return rig_specs[name]
+
+        tasks, meta = [], {}
+        scene_bytes: dict[str, bytes] = {}
+        for s in todo:
+            bgv = s.background if (by_sku[s.safe_sku].variant.row.get("background") or "") else output.background
+            info = {"id": s.id, "sku": s.sku, "product": s.product, "colourway": s.colourway, "finish": s.finish,
+                    "angle": s.angle}
+            try:
+                spec = rig_for(s.rig or default_rig_name())
+                if s.safe_sku not in scene_bytes:
+                    scene_bytes[s.safe_sku] = self_contained_gltf(by_sku[s.safe_sku])
+                tasks.append(ShotTask(
+                    shot_id=s.id, scene_bytes=scene_bytes[s.safe_sku], scene_name=by_sku[s.safe_sku].scene_file,
+                    base_dir=None, angle=s.angle, rig=spec, quality=q, output=output.replace(background=bgv),
+                    exposure_ev=calibrate_exposure(spec), colour_lab_d65=tuple(s.colour_lab_d65), threads=threads,
+                ))
+                meta[s.id] = (info, s.key, bgv)
+            except VariantshotError as exc:
+                msg = exc.format() if isinstance(exc, InputError) else str(exc)
+                report.failed.append((s.id, msg))
+                finish(_entry(info, background=bgv, key=s.key, status="failed", error=msg))
+
+        executor = executor or LocalExecutor(workers, threads=threads)
+        from .._atomic import atomic_write
+
+        for result in executor.map(render_shot, tasks):
+            info, key, bgv = meta[result.shot_id]
+            if result.ok:
+                for im in result.images:
+                    atomic_write(out / im.path, im.data)
+                entry = _entry(info, background=bgv, key=key, status="rendered", images=result.images,
+                               qa=result.qa, seconds=result.seconds)
+                report.rendered.append(result.shot_id)
+                if (result.qa or {}).get("status") == "fail":
+                    report.qa_failed.append(result.shot_id)
+            else:
+                entry = _entry(info, background=bgv, key=key, status="failed", error=result.error, seconds=result.seconds)
+                report.failed.append((result.shot_id, result.error))
+            finish(entry)
+
+        if sheet_formats:
+            report.sheets = _build_sheets(out, sheet_formats)
+    report.seconds = time.perf_counter() - started
+    return report
+
+
+def _build_sheets(out: Path, formats) -> list:
+    """The review stage's contact sheets of the batch (``review.sheets.build_sheets``)."""
+    try:
+        from ..review.sheets import build_sheets
+    except ImportError:
+        return []
+    try:
+        return build_sheets(out, formats=tuple(formats))
+    except VariantshotError as exc:
+        log.warning("contact sheets not built: %s", exc)
+        return []

@@ -39,6 +39,8 @@ def main(
 
 # (command name, "module:function"); each function's docstring's first line is its one-line help.
 COMMANDS: list[tuple[str, str]] = [
+    ("demo", "variantshot.cli.demo:demo"),
+    ("render", "variantshot.cli.render:render"),
     ("check", "variantshot.cli.check:check"),
     ("plan", "variantshot.cli.plan:plan"),
     ("expand", "variantshot.cli.expand:expand"),
