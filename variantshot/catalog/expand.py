@@ -509,19 +509,21 @@ def check_expanded(catalog: Catalog, *, supported_extensions=None, progress=None
     supported = renderer_extensions() if supported_extensions is None else frozenset(supported_extensions)
     flagged: dict[tuple, list] = {}
     for s in scenes:
+        finish_exts = catalog.library.finishes[s.variant.finish].extensions
         for ext in s.gltf.get("extensionsUsed", []):
             if ext not in supported:
-                flagged.setdefault((ext, s.variant.finish), []).append(s)
-    for (ext, finish), items in sorted(flagged.items()):
+                origin = ("finish", s.variant.finish) if ext in finish_exts else ("product", s.variant.product)
+                flagged.setdefault((origin, ext), []).append(s)
+    found = []
+    for ((kind, name), ext), items in flagged.items():
         first = items[0].variant
         more = f" (and {len(items) - 1} more row(s))" if len(items) > 1 else ""
-        in_finish = ext in catalog.library.finishes[finish].extensions
-        origin = f"finish {finish!r}" if in_finish else f"the {first.product!r} template"
-        warnings.append(InputError(
+        origin = f"finish {name!r}" if kind == "finish" else f"the {name!r} template"
+        found.append(InputError(
             f"{origin} uses {ext}, which the renderer does not render yet; the scene keeps it, "
-            f"but the image will not show it{more}", file=first.file, row=first.line,
-            column="finish" if in_finish else "product",
+            f"but the image will not show it{more}", file=first.file, row=first.line, column=kind,
             accepted="extensions the renderer renders: " + ", ".join(sorted(supported))))
+    warnings.extend(sorted(found, key=lambda w: (w.row, w.message)))
     return CheckReport(catalog=catalog, scenes=scenes, warnings=warnings)
 
 

@@ -40,25 +40,26 @@ _MATERIAL_KEYS = {
 _PBR_KEYS = {"baseColorFactor", "baseColorTexture", "metallicFactor", "roughnessFactor",
              "metallicRoughnessTexture", "extensions", "extras"}
 
-# The KHR material extensions DESIGN.md lists as rendered; the renderer's own list wins when it
-# publishes one (variantshot.transport.materials.SUPPORTED_EXTENSIONS).
-DESIGN_RENDERED_EXTENSIONS = frozenset(
+# What the path tracer interprets today, as variantshot/transport/materials.py documents it; the
+# renderer's own published list wins as soon as it has one
+# (variantshot.transport.materials.SUPPORTED_EXTENSIONS), so this only matters until then.
+# KHR_materials_variants never reaches the renderer: the expander bakes the chosen entry in.
+FALLBACK_RENDERED_EXTENSIONS = frozenset(
     {
-        "KHR_materials_clearcoat", "KHR_materials_transmission", "KHR_materials_ior",
-        "KHR_materials_volume", "KHR_materials_sheen", "KHR_materials_specular",
-        "KHR_materials_emissive_strength", "KHR_texture_transform", "KHR_materials_variants",
+        "KHR_materials_emissive_strength", "KHR_materials_ior", "KHR_materials_specular",
+        "KHR_texture_transform", "KHR_materials_variants",
     }
 )
 
 
 def renderer_extensions() -> frozenset[str]:
-    """The glTF extensions the path tracer renders (its published list, else DESIGN.md's)."""
+    """The glTF extensions the path tracer renders (its published list, else the fallback)."""
     try:
         from ..transport import materials  # noqa: PLC0415  (may import numba; only `check` asks)
-    except Exception:  # the renderer is not there (yet): fall back to the design list
-        return DESIGN_RENDERED_EXTENSIONS
+    except Exception:  # the renderer is not importable: use the fallback list
+        return FALLBACK_RENDERED_EXTENSIONS
     supported = getattr(materials, "SUPPORTED_EXTENSIONS", None)
-    return frozenset(supported) if supported else DESIGN_RENDERED_EXTENSIONS
+    return frozenset(supported) | {"KHR_materials_variants"} if supported else FALLBACK_RENDERED_EXTENSIONS
 
 
 @dataclass(frozen=True)
