@@ -252,6 +252,11 @@ def validate_rows(table, library: Library) -> tuple[list[Variant], list[InputErr
                     "SKUs whose file names differ in more than letter case")
             else:
                 safe_owner[safe.lower()] = (sku, line)
+                if safe != sku:
+                    warnings.append(InputError(
+                        f"SKU {sku!r} is not a safe file name; its files are named {safe!r}",
+                        file=file, row=line, column="sku",
+                        accepted="letters, digits, '.', '_' and '-' keep a SKU's own name"))
         if not product:
             err("product", "product is empty", _accepted_list(products) or "a product template name")
         elif product not in products:

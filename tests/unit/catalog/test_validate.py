@@ -128,6 +128,10 @@ def test_unsafe_skus_never_write_outside_the_output_folder(tmp_path, repo_dir):
     for p in new:
         assert p == out or p.resolve() == scenes or p.resolve().parent == scenes, p
     assert (out / "scenes" / "ok-1.gltf").is_file() and (out / "scenes" / "a_b.gltf").is_file()
+    cat = read_catalog(path, templates_dir=repo_dir / "templates")
+    mapped = [w.format() for w in cat.warnings]
+    assert len(mapped) == 5 and all("is not a safe file name; its files are named" in w for w in mapped)
+    assert mapped[0].startswith(f"{path}:2:sku: SKU '../x'")
 
 
 def test_row_numbers_stay_exact_over_many_multiline_rows(tmp_path, repo_dir):
