@@ -3,11 +3,9 @@
 from __future__ import annotations
 
 from .. import _jit  # noqa: F401
-from .._jit import PARALLEL as _PARALLEL_PRESET, njit, prange
+from .._jit import PARALLEL, njit, prange
 
 import math
-
-PARALLEL = dict(_PARALLEL_PRESET, fastmath=set(_PARALLEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
 
 
 @njit(**PARALLEL)

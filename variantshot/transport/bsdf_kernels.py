@@ -52,13 +52,12 @@ KHR_texture_transform matrix (see ``texture_kernels.sample_slot``).
 from __future__ import annotations
 
 from .. import _jit  # noqa: F401
-from .._jit import KERNEL as _KERNEL_PRESET, njit
+from .._jit import KERNEL, njit
 
 import math
 
 from .sampling_kernels import cosine_hemisphere_pdf, sample_cosine_hemisphere
 
-KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
 
 MATERIAL_METAL_ROUGH = 0
 ALPHA_MIN = 0.002  # alpha = roughness**2 never below this (roughness ~0.045)

@@ -20,13 +20,12 @@ col   meaning
 from __future__ import annotations
 
 from .. import _jit  # noqa: F401
-from .._jit import KERNEL as _KERNEL_PRESET, njit
+from .._jit import KERNEL, njit
 
 import math
 
 from .sampling_kernels import sample_uniform_disk_concentric
 
-KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
 
 CAMERA_PERSPECTIVE = 0
 CAMERA_ORTHOGRAPHIC = 1

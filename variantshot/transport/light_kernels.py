@@ -28,13 +28,12 @@ is uniform on the chosen triangle (area density 1/A).
 from __future__ import annotations
 
 from .. import _jit  # noqa: F401
-from .._jit import KERNEL as _KERNEL_PRESET, njit
+from .._jit import KERNEL, njit
 
 import math
 
 from .sampling_kernels import sample_discrete, sample_uniform_triangle
 
-KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
 
 LIGHT_POINT = 0
 LIGHT_SPOT = 1

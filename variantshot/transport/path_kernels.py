@@ -34,7 +34,7 @@ materials.  Float options ``fopts`` (float64): 0 ray offset eps, 1 filter radius
 from __future__ import annotations
 
 from .. import _jit  # noqa: F401
-from .._jit import KERNEL as _KERNEL_PRESET, PARALLEL as _PARALLEL_PRESET, njit, prange
+from .._jit import KERNEL, PARALLEL, njit, prange
 
 import math
 
@@ -52,9 +52,6 @@ from .sampling_kernels import (
     uniform_from_state,
 )
 from .texture_kernels import sample_slot
-
-KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
-PARALLEL = dict(_PARALLEL_PRESET, fastmath=set(_PARALLEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
 
 
 @njit(**KERNEL)
@@ -313,9 +310,10 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
                     uniform_from_state(state, dim + 2), uniform_from_state(state, dim + 3))
                 lmat = tri_material[ltri]
                 lnx, lny, lnz = triangle_geometry(positions, triangles, ltri)[1:]
-                wx = qx - px
-                wy = qy - py
-                wz = qz - pz
+                # the shadow ray starts at the offset point, so measure from there
+                wx = qx - ox_s
+                wy = qy - oy_s
+                wz = qz - oz_s
                 d2 = wx * wx + wy * wy + wz * wz
                 if d2 > 0.0 and larea > 0.0:
                     dist = math.sqrt(d2)
@@ -329,9 +327,9 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
                         pdf_light = p_sel * prob_tri * d2 / (larea * abs(cos_l))
                         ok = pdf_light > 0.0
                         # stop the shadow ray just short of the emitter
-                        dist = dist * (1.0 - 1e-5) - eps
+                        dist = dist * (1.0 - 1e-6) - eps
             else:
-                wix, wiy, wiz, dist, li_r, li_g, li_b = sample_punctual(punctual, entry - 2, px, py, pz)
+                wix, wiy, wiz, dist, li_r, li_g, li_b = sample_punctual(punctual, entry - 2, ox_s, oy_s, oz_s)
                 delta = True
                 pdf_light = p_sel
                 ok = pdf_light > 0.0 and (li_r > 0.0 or li_g > 0.0 or li_b > 0.0)

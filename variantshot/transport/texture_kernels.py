@@ -16,11 +16,9 @@ the top row.
 from __future__ import annotations
 
 from .. import _jit  # noqa: F401
-from .._jit import KERNEL as _KERNEL_PRESET, njit
+from .._jit import KERNEL, njit
 
 import math
-
-KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))  # numba takes a set, not a frozenset
 
 
 @njit(**KERNEL)
