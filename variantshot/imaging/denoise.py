@@ -16,8 +16,8 @@ OIDN's network leaves a small low-frequency bias on noisy input: on flat swatche
 per-pixel relative noise of 0.3 (gamma-distributed, like Monte Carlo estimates) the denoised
 mean moved by up to 0.7 ΔE2000 from the input's own mean, and by 1.4 with ``clean_aux``
 (measured, see ``tests/benchmarks/bench_denoise.py``).  Unless ``preserve_local_mean=False``,
-the result is therefore re-normalised per channel so that its local means (box mean over a
-``(2r+1)²`` window, ``r = mean_radius_px``) match the input's:
+the result is therefore re-normalised per channel so that its local means (box mean over the
+in-image part of a ``(2r+1)²`` window, ``r = mean_radius_px``) match the input's:
 
     out' = out * box(ref) / box(out),    ref = min(noisy, 8 * out)
 
@@ -193,10 +193,30 @@ def _sanitise_radiance(rgb: np.ndarray, nonfinite: str) -> np.ndarray:
     return out
 
 
-def _box_mean(channel: np.ndarray, radius: int) -> np.ndarray:
-    from .background import box_blur
+def _window_sums(a: np.ndarray, radius: int) -> np.ndarray:
+    """Sum of ``a`` (H, W) over the (2r+1)² window around each pixel, clipped to the image."""
+    h, w = a.shape
+    c = np.zeros((h + 1, w + 1), np.float64)
+    np.cumsum(np.cumsum(a, axis=0), axis=1, out=c[1:, 1:])
+    y0 = np.clip(np.arange(h) - radius, 0, h)
+    y1 = np.clip(np.arange(h) + radius + 1, 0, h)
+    x0 = np.clip(np.arange(w) - radius, 0, w)
+    x1 = np.clip(np.arange(w) + radius + 1, 0, w)
+    return c[y1][:, x1] - c[y0][:, x1] - c[y1][:, x0] + c[y0][:, x0]
 
-    return box_blur(channel, radius)
+
+def _box_mean(a: np.ndarray, radius: int) -> np.ndarray:
+    """Mean of ``a`` (H, W) over the in-image part of the (2r+1)² window around each pixel.
+
+    Windows are cut at the border rather than padded: edge padding would repeat the border
+    row's noise ``r`` times and bias the correction there.
+    """
+    if radius <= 0:
+        return np.asarray(a, np.float64).copy()
+    h, w = a.shape
+    rows = np.minimum(np.arange(h) + radius + 1, h) - np.maximum(np.arange(h) - radius, 0)
+    cols = np.minimum(np.arange(w) + radius + 1, w) - np.maximum(np.arange(w) - radius, 0)
+    return _window_sums(np.asarray(a, np.float64), radius) / (rows[:, None] * cols[None, :])
 
 
 def restore_local_means(rgb_noisy, rgb_denoised, radius_px: int = MEAN_RADIUS_PX) -> np.ndarray:
@@ -209,7 +229,7 @@ def restore_local_means(rgb_noisy, rgb_denoised, radius_px: int = MEAN_RADIUS_PX
     rgb_denoised : (H, W, 3) float ndarray
         The denoiser's output.
     radius_px : int
-        Box radius r: means are taken over (2r+1)² pixels, edges clamped.
+        Box radius r: means are taken over the in-image part of the (2r+1)² window.
 
     Returns
     -------

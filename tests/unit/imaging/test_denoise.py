@@ -82,6 +82,15 @@ def test_flat_swatch_colour_kept_synthetic(rel):
         assert np.std(out[inner] / clean[inner]) < 0.25 * rel
 
 
+def test_box_mean_matches_brute_force():
+    """The correction's window mean equals the plain mean over the in-image part of each window."""
+    a = np.random.default_rng(3).random((13, 9))
+    for r in (0, 1, 3, 30):
+        want = np.array([[a[max(0, i - r): i + r + 1, max(0, j - r): j + r + 1].mean() for j in range(9)]
+                         for i in range(13)])
+        np.testing.assert_allclose(dn._box_mean(a, r), want, rtol=0, atol=1e-12)
+
+
 def test_local_mean_correction_keeps_fireflies_local():
     """A firefly the denoiser removes is not smeared back as a bright square by the correction."""
     rng = np.random.default_rng(7)
