@@ -105,3 +105,40 @@ def test_sheet_command_writes_files(batch):
     assert (batch / "sheets/approved-sheet.pdf").is_file()
     assert len(json.loads((batch / "sheets/approved.json").read_text())["shots"]) == 4
     assert run("sheet", batch, "--format", "gif").exit_code == 2
+
+
+MUG_HEADER = "sku,product,colourway,colour,finish,angles\n"
+
+
+def _tiny_render(catalog, out, repo_dir, **kw):
+    runner = pytest.importorskip("variantshot.batch.runner")
+    from variantshot.batch.quality import Quality
+
+    tiny = Quality("tiny", 24, 4, 0.5, max_depth=3)  # 24 px at 4 spp: enough to hash
+    return runner.render_batch(catalog, out, quality=tiny, templates_dir=repo_dir / "templates",
+                               sheet_formats=(), **kw)
+
+
+def test_real_rerender_keeps_or_drops_the_approval(tmp_path, repo_dir):
+    # The batch renders deterministically (same seed, same bytes), so an unchanged re-render must
+    # keep the approval, and a changed catalog row must send the shot back to pending.
+    if not (repo_dir / "templates" / "mug.gltf.j2").is_file():
+        pytest.skip("the demo templates are not in this checkout")
+    catalog = tmp_path / "catalog.csv"
+    out = tmp_path / "out"
+    catalog.write_text(MUG_HEADER + "T-MUG-1,mug,Clay,#b5654a,satin,front\n", encoding="utf-8")
+    _tiny_render(catalog, out, repo_dir)
+    sid = "T-MUG-1--front"
+    assert run("approve", out, sid, "--by", "ana").exit_code == 0
+    before = json.loads((out / "manifest.json").read_text())["shots"][sid]["content_hash"]
+
+    _tiny_render(catalog, out, repo_dir, force=True)  # rendered again, same row
+    after = json.loads((out / "manifest.json").read_text())["shots"][sid]
+    assert after["content_hash"] == before
+    assert json.loads(run("qa", out, "--json").stdout)["shots"][sid]["approval"] == "approved"
+
+    catalog.write_text(MUG_HEADER + "T-MUG-1,mug,Clay,#3a65b5,satin,front\n", encoding="utf-8")
+    _tiny_render(catalog, out, repo_dir)
+    changed = json.loads((out / "manifest.json").read_text())["shots"][sid]
+    assert changed["content_hash"] != before
+    assert json.loads(run("qa", out, "--json").stdout)["shots"][sid]["approval"] == "pending"

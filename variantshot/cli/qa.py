@@ -59,6 +59,8 @@ def qa(
 
 
 _MARK = {"pass": "✓ pass", "warn": "! warn", "fail": "✗ fail"}
+_HEAD = {"colour_delta_e": "ΔE2000", "fill": "fill", "centring": "centre", "edge_clipping": "edge",
+         "background_purity": "white bg", "clipped_highlights": "blown", "noise": "noise"}
 _STYLE = {"pass": "green", "warn": "yellow", "fail": "bold red"}
 
 
@@ -66,7 +68,7 @@ def _cell(check: dict | None) -> str:
     if not check:
         return "[dim]–[/dim]"
     v = check.get("value")
-    fig = "" if v is None else (f"{v:.3g}" if isinstance(v, (int, float)) else str(v))
+    fig = "" if v is None else (f"{v:.3f}" if isinstance(v, (int, float)) else str(v))
     st = check.get("status")
     sym = {"pass": "✓", "warn": "!", "fail": "✗"}.get(st, "?")
     return f"[{_STYLE.get(st, 'red')}]{sym} {fig}[/]"
@@ -83,11 +85,11 @@ def _print_table(results: dict) -> None:
             if c["name"] not in names:
                 names.append(c["name"])
     table = Table(title="QA", show_lines=False)
-    table.add_column("shot", overflow="fold")
-    table.add_column("QA")
+    table.add_column("shot", no_wrap=True)
+    table.add_column("QA", no_wrap=True)
     for n in names:
-        table.add_column(n.replace("_", " "))
-    table.add_column("approval")
+        table.add_column(_HEAD.get(n, n.replace("_", " ")), no_wrap=True, justify="right")
+    table.add_column("approval", no_wrap=True)
     for sid, r in results.items():
         if r["status"] != "rendered":
             table.add_row(escape(sid), "[bold red]✗ render failed[/]",
@@ -102,4 +104,7 @@ def _print_table(results: dict) -> None:
             *[_cell(by_name.get(n)) for n in names],
             escape(r["approval"]),
         )
-    Console(stderr=True, soft_wrap=False).print(table)
+    console = Console(stderr=True)
+    if not console.is_terminal:  # piped or captured: do not squeeze the table into 80 columns
+        console = Console(stderr=True, width=200)
+    console.print(table)

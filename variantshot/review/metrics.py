@@ -213,13 +213,15 @@ def clipped_highlights(rgb_srgb8, mask) -> float:
     return float(np.count_nonzero(blown & m) / n)
 
 
-def relative_standard_error(rgb_linear, variance, mask, weights=(0.2126, 0.7152, 0.0722)) -> float:
-    """Residual Monte Carlo noise of the product: standard error of the luminance over its mean.
+def relative_standard_error(rgb_linear, variance, mask, weights=(0.2126, 0.7152, 0.0722),
+                            statistic: str = "median") -> float:
+    """Residual Monte Carlo noise of the product: standard error of the luminance over its value.
 
     Per pixel the luminance estimate is ``Y = w . rgb`` and its variance (channels taken as
-    independent) ``var_Y = sum(w**2 * variance)``; the result is
-    ``sqrt(mean(var_Y)) / mean(Y)`` over the product pixels, i.e. the RMS standard error
-    relative to the mean luminance.
+    independent) ``var_Y = sum(w**2 * variance)``.  With ``statistic="median"`` (default) the
+    result is the median over the product pixels of the per-pixel relative standard error
+    ``sqrt(var_Y) / Y``: the typical graininess, robust to a few fireflies.  With ``"rms"`` it
+    is ``sqrt(mean(var_Y)) / mean(Y)``: the RMS standard error relative to the mean luminance.
 
     Parameters
     ----------
@@ -231,6 +233,7 @@ def relative_standard_error(rgb_linear, variance, mask, weights=(0.2126, 0.7152,
         Product pixels.
     weights : (3,) floats
         Luminance weights (default: the Y row of the sRGB to XYZ matrix, IEC 61966-2-1).
+    statistic : {"median", "rms"}
 
     Returns
     -------
@@ -244,15 +247,22 @@ def relative_standard_error(rgb_linear, variance, mask, weights=(0.2126, 0.7152,
         raise ValueError(
             f"rgb_linear {rgb.shape}, variance {var.shape} and mask {m.shape} must share (H, W)"
         )
+    if statistic not in ("median", "rms"):
+        raise ValueError(f"statistic {statistic!r} is not accepted (median, rms)")
     if not m.any():
         return float("nan")
     w = np.asarray(weights, dtype=np.float64)
     y = rgb[m] @ w
-    var_y = var[m] @ (w * w)
-    mean_y = float(np.mean(y))
-    if mean_y <= 0.0:
+    var_y = np.maximum(var[m] @ (w * w), 0.0)
+    if statistic == "rms":
+        mean_y = float(np.mean(y))
+        if mean_y <= 0.0:
+            return float("nan")
+        return float(np.sqrt(float(np.mean(var_y))) / mean_y)
+    lit = y > 0.0
+    if not lit.any():
         return float("nan")
-    return float(np.sqrt(max(float(np.mean(var_y)), 0.0)) / mean_y)
+    return float(np.median(np.sqrt(var_y[lit]) / y[lit]))
 
 
 def mean_srgb8(rgb_srgb8, mask) -> np.ndarray | None:

@@ -3,7 +3,8 @@
 :func:`run_qa` turns one shot's image (and, when the batch has it, the film and the variant's
 swatch) into a :class:`QAResult` whose :meth:`QAResult.to_dict` is the manifest's ``"qa"`` value
 (BRIEF section 7): ``{"status", "checks": [{"name", "status", "value", "limit", "message"}]}``
-plus, by extension, ``"product_colour"`` (the product's mean rendered colour) and ``"caution"``.
+plus, by extension, ``"product_colour"`` (the product's mean rendered colour).  :data:`CAUTION`
+is the line every QA report and sheet shows.
 
 The limits are in :class:`QASettings`.  Except the colour limit (the issue's default of 2.0
 ΔE2000), they are trade practice for marketplace main images with no written authority behind
@@ -152,7 +153,6 @@ class QAResult:
         out = {"status": self.status, "checks": [c.to_dict() for c in self.checks]}
         if self.product_colour is not None:
             out["product_colour"] = self.product_colour
-        out["caution"] = CAUTION
         return out
 
 
@@ -355,7 +355,8 @@ def run_qa(
         rse = metrics.relative_standard_error(film.radiance, film.variance, mask)
         if np.isfinite(rse):
             checks.append(_upper("noise", rse, target, s.noise_warn_factor * target,
-                                 lambda v: f"{v:.3f}", "relative standard error"))
+                                 lambda v: f"{v:.3f}",
+                                 "median relative standard error of the film (before denoising)"))
 
     # report: the product's mean rendered colour
     mean = metrics.mean_srgb8(rgb, mask) if coverage is not None else None

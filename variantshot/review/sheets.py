@@ -73,21 +73,23 @@ class SheetCell:
     angle: str
     status: str  # manifest status: "rendered" | "failed"
     qa_status: str | None
-    qa_notes: tuple[str, ...]  # "fill 72%" style notes of the checks that did not pass
+    qa_notes: tuple[tuple[str, str], ...]  # ("! noise 0.18", message) of checks that did not pass
     approval: str
     image: str | None  # relative to the output folder
     image_path: Path | None
     error: str | None
 
 
-def _qa_notes(qa: dict | None) -> tuple[str, ...]:
+def _qa_notes(qa: dict | None) -> tuple[tuple[str, str], ...]:
+    """``("! noise 0.18", full message)`` for every check that did not pass."""
     notes = []
     for c in (qa or {}).get("checks", []) or []:
         st = c.get("status")
         if st in (WARN, FAIL):
             v = c.get("value")
             fig = "" if v is None else (f" {v:.2f}" if isinstance(v, (int, float)) else f" {v}")
-            notes.append(f"{'!' if st == WARN else 'x'} {c.get('name', '?')}{fig}")
+            notes.append((f"{'!' if st == WARN else 'x'} {c.get('name', '?')}{fig}",
+                          str(c.get("message", ""))))
     return tuple(notes)
 
 
@@ -239,11 +241,17 @@ def _badge(draw, x: int, y: int, kind: str, word: str, colour, *, outline_only: 
 
 
 def _draw_cell(page, draw, x: int, y: int, cell: SheetCell | None) -> None:
-    draw.rectangle([x, y, x + CELL_W - 1, y + CELL_H - 1], fill=_CELL_BG, outline=_LINE)
-    if cell is None:
-        draw.text((x + CELL_W // 2, y + PAD + THUMB // 2), "no shot", font=_font(13),
-                  fill=_MUTED, anchor="mm")
+    if cell is None:  # this variant has no shot from this angle: a quiet placeholder
+        for i in range(x, x + CELL_W, 12):  # dashed outline
+            draw.line([(i, y), (min(i + 6, x + CELL_W - 1), y)], fill=_LINE)
+            draw.line([(i, y + CELL_H - 1), (min(i + 6, x + CELL_W - 1), y + CELL_H - 1)], fill=_LINE)
+        for j in range(y, y + CELL_H, 12):
+            draw.line([(x, j), (x, min(j + 6, y + CELL_H - 1))], fill=_LINE)
+            draw.line([(x + CELL_W - 1, j), (x + CELL_W - 1, min(j + 6, y + CELL_H - 1))], fill=_LINE)
+        draw.text((x + CELL_W // 2, y + PAD + THUMB // 2), "no shot from this angle", font=_font(12),
+                  fill=(150, 150, 156), anchor="mm")
         return
+    draw.rectangle([x, y, x + CELL_W - 1, y + CELL_H - 1], fill=_CELL_BG, outline=_LINE)
     bx, by = x + PAD, y + PAD
     draw.rectangle([bx - 1, by - 1, bx + THUMB, by + THUMB], fill=_PAPER, outline=_LINE)
     thumb = _thumbnail(cell.image_path)
@@ -279,7 +287,7 @@ def _draw_cell(page, draw, x: int, y: int, cell: SheetCell | None) -> None:
            _APPROVAL_COLOUR[cell.approval], outline_only=cell.approval == _approvals.PENDING)
     ty += 27
     if cell.qa_notes:
-        note = ", ".join(cell.qa_notes)
+        note = ", ".join(short for short, _ in cell.qa_notes)
         colour = _QA_COLOUR[FAIL] if cell.qa_status == FAIL else _QA_COLOUR[WARN]
         draw.text((bx, ty), _ellipsis(note, _font(11), tw), font=_font(11), fill=colour)
 

@@ -89,14 +89,25 @@ def test_relative_standard_error_matches_sample_statistics():
     mean = samples.mean(axis=0)
     var_of_mean = samples.var(axis=0, ddof=1) / n
     mask = np.ones((32, 32), bool)
-    rse = metrics.relative_standard_error(mean, var_of_mean, mask)
     w = np.array([0.2126, 0.7152, 0.0722])
     expected = np.sqrt((w * w).sum() / (3 * n)) / 1.0
-    assert rse == pytest.approx(expected, rel=0.05)
-    # and it agrees with the spread actually seen between pixels of the (flat) image
+    # and the spread actually seen between pixels of the (flat) image
     seen = (mean @ w).std() / (mean @ w).mean()
-    assert rse == pytest.approx(seen, rel=0.1)
+    for statistic in ("median", "rms"):
+        rse = metrics.relative_standard_error(mean, var_of_mean, mask, statistic=statistic)
+        assert rse == pytest.approx(expected, rel=0.05)
+        assert rse == pytest.approx(seen, rel=0.1)
     assert np.isnan(metrics.relative_standard_error(mean, var_of_mean, np.zeros((32, 32), bool)))
+
+
+def test_median_noise_ignores_a_few_fireflies():
+    mean = np.full((20, 20, 3), 0.5)
+    var = np.full((20, 20, 3), (0.5 * 0.02) ** 2)
+    var[0, :3] = 1e4  # three fireflies
+    mask = np.ones((20, 20), bool)
+    assert metrics.relative_standard_error(mean, var, mask) == pytest.approx(0.02 * np.sqrt(
+        0.2126**2 + 0.7152**2 + 0.0722**2), rel=1e-6)
+    assert metrics.relative_standard_error(mean, var, mask, statistic="rms") > 1.0
 
 
 def test_mean_srgb8_averages_in_linear_light():

@@ -38,7 +38,7 @@ def test_good_packshot_passes_every_check_and_has_manifest_shape():
         "fill", "centring", "edge_clipping", "background_purity", "clipped_highlights"]
     assert d["checks"][0]["value"] == pytest.approx(170 / 200)
     assert d["product_colour"]["hex"] == "#963C28"
-    assert "physical samples" in d["caution"]
+    assert "physical samples" in qa.CAUTION
 
 
 def test_small_off_centre_clipped_product_fails_the_right_checks():
