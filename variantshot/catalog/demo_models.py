@@ -221,20 +221,15 @@ def translate(m: Mesh, offset) -> Mesh:
 # ----------------------------------------------------------------------------- the products
 
 
-def bottle_parts() -> dict[str, Mesh]:
-    """Insulated 500 ml bottle: body 73 mm across, 262 mm tall with its cap."""
-    body = rounded_polyline(
+def lathe_profiles() -> dict[tuple[str, str], tuple[np.ndarray, int]]:
+    """``{(product, part): ((N, 2) radius/height profile, segments)}`` of every turned part."""
+    bottle_body = rounded_polyline(
         [(0.0, 0.0), (0.0365, 0.0), (0.0365, 0.185), (0.0285, 0.212), (0.0285, 0.226), (0.0245, 0.226),
          (0.0245, 0.214), (0.0, 0.214)],
         [0, 0.006, 0.025, 0.02, 0.0015, 0.0015, 0.001, 0], n_arc=6)
-    cap = rounded_polyline(
+    bottle_cap = rounded_polyline(
         [(0.0, 0.2155), (0.0312, 0.2155), (0.0312, 0.2575), (0.0, 0.2575)],
         [0, 0.0015, 0.007, 0], n_arc=6)
-    return {"body": lathe(body, 48), "cap": lathe(cap, 48)}
-
-
-def mug_parts() -> dict[str, Mesh]:
-    """Ceramic 350 ml mug: 86 mm across the rim, 95 mm tall, handle on +X."""
     outer = rounded_polyline(
         [(0.0, 0.0015), (0.034, 0.0015), (0.036, 0.0), (0.0405, 0.008), (0.043, 0.095), (0.0425, 0.0955)],
         [0, 0.001, 0.002, 0.006, 0.0, 0], n_arc=5)
@@ -244,23 +239,42 @@ def mug_parts() -> dict[str, Mesh]:
     # the rim: a half-round joining the outer and inner walls
     t = np.linspace(0.0, math.pi, 7)
     rim = np.stack([0.0415 + 0.00175 * np.cos(t), 0.0955 + 0.0012 * np.sin(t)], axis=1)
-    outer_full = np.concatenate([outer[:-1], rim, inner[1:]])
+    mug_body = np.concatenate([outer[:-1], rim, inner[1:]])
+    foot = rounded_polyline([(0.0, 0.0), (0.008, 0.0), (0.008, 0.0045), (0.0, 0.0045)], [0, 0.002, 0.0015, 0], n_arc=4)
+    button = rounded_polyline([(0.0, 0.106), (0.011, 0.106), (0.011, 0.1105), (0.0, 0.1112)], [0, 0.0, 0.0015, 0],
+                              n_arc=4)
+    return {
+        ("bottle", "body"): (bottle_body, 48),
+        ("bottle", "cap"): (bottle_cap, 48),
+        ("mug", "body"): (mug_body, 56),
+        ("speaker", "foot"): (foot, 20),
+        ("speaker", "button"): (button, 32),
+    }
+
+
+def bottle_parts() -> dict[str, Mesh]:
+    """Insulated 500 ml bottle: body 73 mm across, 257.5 mm tall with its cap."""
+    prof = lathe_profiles()
+    return {part: lathe(*prof[("bottle", part)]) for part in ("body", "cap")}
+
+
+def mug_parts() -> dict[str, Mesh]:
+    """Ceramic 350 ml mug: 86 mm across the rim, 95 mm tall, handle on +X."""
     u = np.linspace(0.0, 1.0, 28)
     # handle: a D-shaped path in the XY plane leaving the wall at y 0.078 and re-entering at 0.022
     ang = -math.pi / 2 + math.pi * u
     path = np.stack([0.0405 + 0.028 * np.cos(ang) ** 0.9, 0.050 - 0.028 * np.sin(ang)], axis=1)
     path3 = np.stack([path[:, 0], path[:, 1], np.zeros(len(u))], axis=1)
-    return {"body": lathe(outer_full, 56), "handle": sweep(path3, 0.0055, 0.0075, 16)}
+    return {"body": lathe(*lathe_profiles()[("mug", "body")]), "handle": sweep(path3, 0.0055, 0.0075, 16)}
 
 
 def speaker_parts() -> dict[str, Mesh]:
     """Small speaker: 170 x 104 x 78 mm body on four rubber feet, fabric grille on the front."""
     body = translate(rounded_box((0.085, 0.052, 0.039), 0.012, 8), (0.0, 0.056, 0.0))
     grille = translate(rounded_box((0.074, 0.041, 0.003), 0.0025, 6), (0.0, 0.056, 0.0375))
-    foot = lathe(rounded_polyline([(0.0, 0.0), (0.008, 0.0), (0.008, 0.0045), (0.0, 0.0045)],
-                                  [0, 0.002, 0.0015, 0], n_arc=4), 20)
-    button = lathe(rounded_polyline([(0.0, 0.106), (0.011, 0.106), (0.011, 0.1105), (0.0, 0.1112)],
-                                    [0, 0.0, 0.0015, 0], n_arc=4), 32)
+    prof = lathe_profiles()
+    foot = lathe(*prof[("speaker", "foot")])
+    button = lathe(*prof[("speaker", "button")])
     return {"body": body, "grille": grille, "foot": foot, "button": button}
 
 
