@@ -120,10 +120,6 @@ class Finish:
                     mat.setdefault("extensions", {}).setdefault(ext, {})[prop] = list(colour.linear)
         return mat
 
-    # Jinja's sandbox lets templates read attributes; keep a dict-like view for `finish.x` lookups
-    def __getitem__(self, key):
-        return getattr(self, key)
-
 
 def _check_finish(name: str, data: dict, file: str) -> list[InputError]:
     errors = []

@@ -84,6 +84,9 @@ def test_context_row_colour_finish_reach_the_scene(tmp_path, repo_dir):
         ("{{ open('/etc/passwd').read() }}", "'open' is undefined"),
         ("{{ lipsum.__globals__['os'] }}", "refused by the template sandbox"),
         ("{{ self._TemplateReference__context }}", "refused by the template sandbox"),
+        ("{{ finish['__class__'] }}", "refused by the template sandbox"),
+        ("{{ colour['__class__'] }}", "refused by the template sandbox"),
+        ("{{ finishes.matte.__init__ }}", "refused by the template sandbox"),
         ("{% set x = row.update({'sku': 1}) %}", "refused by the template sandbox"),
     ],
 )
