@@ -85,6 +85,7 @@ def main() -> None:
     import numba
 
     from variantshot.geometry.bvh import build_bvh, intersect, occluded
+    from variantshot.geometry.bvh_kernels import WIDTH
 
     n_all = numba.config.NUMBA_NUM_THREADS
     size = 256 if args.quick else 512
@@ -124,7 +125,7 @@ def main() -> None:
         rays = {"camera": (o_cam, d_cam), "bounce": (o_b, d_b)}
         entry = {
             "triangles": int(len(tris)),
-            "bvh_nodes": int(len(b.nodes_i) // 4),
+            "bvh_nodes": int(len(b.nodes_i) // WIDTH),
             "build_s_per_mtri": {
                 "ours": ours_build / len(tris) * 1e6,
                 "embreex": emb_build / len(tris) * 1e6,

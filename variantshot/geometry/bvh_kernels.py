@@ -1,24 +1,30 @@
-"""BVH kernels: binned-SAH build, 4-wide collapse, watertight closest-hit and any-hit traversal.
+"""BVH kernels: binned-SAH build, 8-wide collapse, watertight closest-hit and any-hit traversal.
 
 Layout (the arrays of :class:`variantshot.geometry.bvh.BVH`)
 ------------------------------------------------------------
-The tree is 4-wide.  Node 0 is the root and is always an inner node, even for 0 or 1 triangles.
+The tree is WIDTH-wide (WIDTH = 8).  Node 0 is the root and is always an inner node, even for
+0 or 1 triangles.
 
-``nodes_f`` : (24 * n_nodes,) float32
-    Child boxes of node ``n`` at ``24 n``, structure-of-arrays by plane, one lane per child::
+``nodes_f`` : (6 WIDTH n_nodes,) float32
+    Child boxes of node ``n`` at ``48 n``, structure-of-arrays by plane, one lane per child::
 
-        [min_x c0..c3, max_x c0..c3, min_y c0..c3, max_y c0..c3, min_z c0..c3, max_z c0..c3]
+        [min_x c0..c7, max_x c0..c7, min_y c0..c7, max_y c0..c7, min_z c0..c7, max_z c0..c7]
 
-    An empty child slot has min = +inf and max = -inf, so no ray ever enters it.
-``nodes_i`` : (4 * n_nodes,) int32
-    Child references of node ``n`` at ``4 n``.  ``ref >= 0`` is an inner node index.  ``ref < 0``
+    so one node's test is six 8-lane vector loads.  An empty child slot has min = +inf and
+    max = -inf, so no ray ever enters it.
+``nodes_i`` : (WIDTH n_nodes,) int32
+    Child references of node ``n`` at ``8 n``.  ``ref >= 0`` is an inner node index.  ``ref < 0``
     is a leaf: with ``v = ~ref`` (= -ref - 1) its triangles are ``v >> 3 .. (v >> 3) + (v & 7) - 1``
     in leaf order (1 to 7 triangles; the build makes at most 4).  Empty slots hold -1.
-``tris_f`` : (9 * n_tris,) float32
+``tris_f`` : (9 n_tris,) float32
     The three vertices of each triangle in leaf order, ``[v0x v0y v0z v1x v1y v1z v2x v2y v2z]``,
     in the triangle's original vertex order (so barycentrics refer to the original vertices).
 ``tri_ids`` : (n_tris,) int32
     Original triangle index of each leaf-order triangle.
+
+Traversal: ordered (children hit are pushed far-to-near, the nearest is visited next, and a
+stacked subtree is skipped when its entry distance is beyond the closest hit so far); any-hit
+returns at the first hit.  The stack lives on the machine stack (no allocation per ray).
 
 Ray-triangle test
 -----------------
@@ -28,11 +34,16 @@ ray becomes the +z axis.  The three 2-D edge functions are evaluated in float64:
 float32 values is exact in float64, so each edge function's *sign* is exact (this replaces the
 paper's "recompute in double when exactly 0" fallback).  A shared edge gives the two triangles
 edge functions of exactly opposite sign, so a ray through it hits one of them or both (at the
-same t), never neither.  The test is compiled without fast-math so that every vertex goes
-through the same IEEE operations in every triangle that uses it.
+same t), never neither.  Every vertex goes through the same operations in every triangle
+that uses it, so fast-math contraction (fma) cannot break that symmetry, and the float64 edge
+functions are exact in sign with or without fma.
 
 Ray-box test: slabs with the conservative far-distance factor 1 + 2 gamma(3) of Ize (2013),
-"Robust BVH Ray Traversal", JCGT 2(2), as used by pbrt-v4 ``Bounds3::IntersectP``.
+"Robust BVH Ray Traversal", JCGT 2(2), as used by pbrt-v4 ``Bounds3::IntersectP``; evaluated
+for all 8 children at once as LLVM vector code (an ``@intrinsic``, since numba runs no SLP
+vectorizer).  ``closest_hit`` and ``any_hit`` are inlined at numba-IR level into their callers
+(``inline="always"``): called as functions, numba reference-counts the four array arguments
+on every call, which costs as much as a short traversal and serialises threads on the counts.
 """
 
 from __future__ import annotations
@@ -50,6 +61,11 @@ from numba import types
 from numba.core import cgutils
 from numba.extending import intrinsic
 
+# Children per node, and traversal stack entries (each wide level pushes at most WIDTH - 1
+# entries; the build keeps the binary depth below 48 + 32, so the wide depth is at most 80).
+WIDTH = 8
+STACK = 640
+
 # numba accepts fastmath as a bool, dict or *set* (not frozenset), so pass a set copy.
 KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))
 PARALLEL = dict(_PARALLEL_PRESET, fastmath=set(_PARALLEL_PRESET["fastmath"]))
@@ -61,40 +77,40 @@ INLINE = dict(KERNEL, inline="always")
 if numba.config.DISABLE_JIT:
 
     def _stack_refs():
-        return np.empty(256, np.int32)
+        return np.empty(STACK, np.int32)
 
     def _stack_dists():
-        return np.empty(256, np.float32)
+        return np.empty(STACK, np.float32)
 
 else:
 
     @intrinsic
-    def _alloca_i32_256(typingctx):
-        """A 256-entry int32 buffer on the machine stack (no heap allocation per ray)."""
+    def _alloca_i32_stack(typingctx):
+        """A STACK-entry int32 buffer on the machine stack (no heap allocation per ray)."""
         sig = types.CPointer(types.int32)()
 
         def codegen(context, builder, signature, args):
-            return cgutils.alloca_once(builder, context.get_value_type(types.int32), size=256)
+            return cgutils.alloca_once(builder, context.get_value_type(types.int32), size=STACK)
 
         return sig, codegen
 
     @intrinsic
-    def _alloca_f32_256(typingctx):
-        """A 256-entry float32 buffer on the machine stack."""
+    def _alloca_f32_stack(typingctx):
+        """A STACK-entry float32 buffer on the machine stack."""
         sig = types.CPointer(types.float32)()
 
         def codegen(context, builder, signature, args):
-            return cgutils.alloca_once(builder, context.get_value_type(types.float32), size=256)
+            return cgutils.alloca_once(builder, context.get_value_type(types.float32), size=STACK)
 
         return sig, codegen
 
     @njit(**INLINE)
     def _stack_refs():
-        return numba.carray(_alloca_i32_256(), 256)
+        return numba.carray(_alloca_i32_stack(), STACK)
 
     @njit(**INLINE)
     def _stack_dists():
-        return numba.carray(_alloca_f32_256(), 256)
+        return numba.carray(_alloca_f32_stack(), STACK)
 
 
 # --------------------------------------------------------------------------------------------
@@ -200,34 +216,27 @@ def _inv_dir(d):
 
 @njit(**INLINE)
 def _node_test_scalar(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi):
-    """Slab test of the 4 child boxes of inner node ``ref`` (straight-line, one lane per child).
+    """Slab test of the WIDTH child boxes of inner node ``ref``.
 
-    Returns (tn0, tn1, tn2, tn3, mask): entry distances and a 4-bit mask of the children hit.
+    Returns (entry distances, a WIDTH-bit mask of the children hit).  ``nx, ny, nz`` are the
+    near-plane row offsets picked by the ray's direction signs.
     """
-    b = 24 * ref
-    fx = b + 4 - nx
-    fy = b + 20 - ny
-    fz = b + 36 - nz
-    nx = b + nx
-    ny = b + ny
-    nz = b + nz
+    tn_out = np.empty(WIDTH, np.float32)
+    b = 6 * WIDTH * ref
+    fx = b + WIDTH - nx
+    fy = b + 5 * WIDTH - ny
+    fz = b + 9 * WIDTH - nz
     robust = np.float32(1.0000004)  # 1 + 2 gamma(3) in float32 (Ize 2013)
-    n0 = max(max((nodes_f[nx] - ox) * ivx, (nodes_f[ny] - oy) * ivy), max((nodes_f[nz] - oz) * ivz, t_lo))
-    n1 = max(max((nodes_f[nx + 1] - ox) * ivx, (nodes_f[ny + 1] - oy) * ivy),
-             max((nodes_f[nz + 1] - oz) * ivz, t_lo))
-    n2 = max(max((nodes_f[nx + 2] - ox) * ivx, (nodes_f[ny + 2] - oy) * ivy),
-             max((nodes_f[nz + 2] - oz) * ivz, t_lo))
-    n3 = max(max((nodes_f[nx + 3] - ox) * ivx, (nodes_f[ny + 3] - oy) * ivy),
-             max((nodes_f[nz + 3] - oz) * ivz, t_lo))
-    f0 = min(min(min((nodes_f[fx] - ox) * ivx, (nodes_f[fy] - oy) * ivy), (nodes_f[fz] - oz) * ivz) * robust, t_hi)
-    f1 = min(min(min((nodes_f[fx + 1] - ox) * ivx, (nodes_f[fy + 1] - oy) * ivy),
-                 (nodes_f[fz + 1] - oz) * ivz) * robust, t_hi)
-    f2 = min(min(min((nodes_f[fx + 2] - ox) * ivx, (nodes_f[fy + 2] - oy) * ivy),
-                 (nodes_f[fz + 2] - oz) * ivz) * robust, t_hi)
-    f3 = min(min(min((nodes_f[fx + 3] - ox) * ivx, (nodes_f[fy + 3] - oy) * ivy),
-                 (nodes_f[fz + 3] - oz) * ivz) * robust, t_hi)
-    mask = (1 if n0 <= f0 else 0) | (2 if n1 <= f1 else 0) | (4 if n2 <= f2 else 0) | (8 if n3 <= f3 else 0)
-    return n0, n1, n2, n3, mask
+    mask = 0
+    for k in range(WIDTH):
+        tn = max(max((nodes_f[b + nx + k] - ox) * ivx, (nodes_f[b + ny + k] - oy) * ivy),
+                 max((nodes_f[b + nz + k] - oz) * ivz, t_lo))
+        tf = min(min(min((nodes_f[fx + k] - ox) * ivx, (nodes_f[fy + k] - oy) * ivy),
+                     (nodes_f[fz + k] - oz) * ivz) * robust, t_hi)
+        tn_out[k] = tn
+        if tn <= tf:
+            mask |= 1 << k
+    return tn_out, mask
 
 
 if numba.config.DISABLE_JIT:
@@ -270,32 +279,37 @@ else:
 
 if numba.config.DISABLE_JIT:
     _node_test = _node_test_scalar
+
+    def _ctz(m):
+        k = 0
+        while not (m >> k) & 1:
+            k += 1
+        return k
+
 else:
 
     @intrinsic
     def _node_test(typingctx, nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi):
-        """:func:`_node_test_scalar` as one 4-lane LLVM vector computation.
+        """:func:`_node_test_scalar` as one WIDTH-lane LLVM vector computation.
 
-        numba does not run LLVM's SLP vectorizer, so the four child slabs are written as
-        explicit <4 x float> operations: six vector loads, and a sub, mul, max/min per plane.
+        numba does not run LLVM's SLP vectorizer, so the child slabs are written as explicit
+        <WIDTH x float> operations: six vector loads, and a sub, mul, max/min per plane.
         """
-        f32 = types.float32
-        sig = types.Tuple((f32, f32, f32, f32, types.int64))(
-            nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi
-        )
+        lanes_t = types.UniTuple(types.float32, WIDTH)
+        sig = types.Tuple((lanes_t, types.int64))(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi)
 
         def codegen(context, builder, signature, args):
             ir = cgutils.ir
             i32 = ir.IntType(32)
             i64 = ir.IntType(64)
-            vty = ir.VectorType(ir.FloatType(), 4)
+            vty = ir.VectorType(ir.FloatType(), WIDTH)
             arr = context.make_array(signature.args[0])(context, builder, args[0])
             ints = [context.cast(builder, args[k], signature.args[k], types.int64) for k in range(1, 5)]
-            flts = [context.cast(builder, args[k], signature.args[k], f32) for k in range(5, 13)]
+            flts = [context.cast(builder, args[k], signature.args[k], types.float32) for k in range(5, 13)]
             r_ref, r_nx, r_ny, r_nz = ints
             r_ox, r_oy, r_oz, r_ivx, r_ivy, r_ivz, r_lo, r_hi = flts
-            base = builder.mul(r_ref, ir.Constant(i64, 24))
-            zeros = ir.Constant(ir.VectorType(i32, 4), [0, 0, 0, 0])
+            base = builder.mul(r_ref, ir.Constant(i64, 6 * WIDTH))
+            zeros = ir.Constant(ir.VectorType(i32, WIDTH), [0] * WIDTH)
 
             def splat(x):
                 v = builder.insert_element(ir.Constant(vty, None), x, ir.Constant(i32, 0))
@@ -316,22 +330,35 @@ else:
 
             o_x, o_y, o_z = splat(r_ox), splat(r_oy), splat(r_oz)
             i_x, i_y, i_z = splat(r_ivx), splat(r_ivy), splat(r_ivz)
-            c4 = ir.Constant(i64, 4)
-            c20 = ir.Constant(i64, 20)
-            c36 = ir.Constant(i64, 36)
             tn = vmax(
                 vmax(slab(r_nx, o_x, i_x), slab(r_ny, o_y, i_y)),
                 vmax(slab(r_nz, o_z, i_z), splat(r_lo)),
             )
-            tf = vmin(
-                vmin(slab(builder.sub(c4, r_nx), o_x, i_x), slab(builder.sub(c20, r_ny), o_y, i_y)),
-                slab(builder.sub(c36, r_nz), o_z, i_z),
-            )
+            far_x = builder.sub(ir.Constant(i64, WIDTH), r_nx)
+            far_y = builder.sub(ir.Constant(i64, 5 * WIDTH), r_ny)
+            far_z = builder.sub(ir.Constant(i64, 9 * WIDTH), r_nz)
+            tf = vmin(vmin(slab(far_x, o_x, i_x), slab(far_y, o_y, i_y)), slab(far_z, o_z, i_z))
             tf = vmin(builder.fmul(tf, splat(ir.Constant(ir.FloatType(), 1.0000004))), splat(r_hi))
             hit = builder.fcmp_ordered("<=", tn, tf)
-            mask = builder.zext(builder.bitcast(hit, ir.IntType(4)), i64)
-            lanes = [builder.extract_element(tn, ir.Constant(i32, k)) for k in range(4)]
-            return context.make_tuple(builder, signature.return_type, lanes + [mask])
+            mask = builder.zext(builder.bitcast(hit, ir.IntType(WIDTH)), i64)
+            lanes = [builder.extract_element(tn, ir.Constant(i32, k)) for k in range(WIDTH)]
+            lanes = context.make_tuple(builder, lanes_t, lanes)
+            return context.make_tuple(builder, signature.return_type, [lanes, mask])
+
+        return sig, codegen
+
+    @intrinsic
+    def _ctz(typingctx, m):
+        """Index of the lowest set bit of a non-zero int64 (llvm.cttz)."""
+        sig = types.int64(m)
+
+        def codegen(context, builder, signature, args):
+            ir = cgutils.ir
+            i64 = ir.IntType(64)
+            x = context.cast(builder, args[0], signature.args[0], types.int64)
+            fnty = ir.FunctionType(i64, [i64, ir.IntType(1)])
+            fn = cgutils.get_or_insert_function(builder.module, fnty, "llvm.cttz.i64")
+            return builder.call(fn, [x, ir.Constant(ir.IntType(1), 1)])
 
         return sig, codegen
 
@@ -384,9 +411,9 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
         ivx = _inv_dir(dx)
         ivy = _inv_dir(dy)
         ivz = _inv_dir(dz)
-        nx = 0 if ivx >= 0.0 else 4
-        ny = 8 if ivy >= 0.0 else 12
-        nz = 16 if ivz >= 0.0 else 20
+        nx = 0 if ivx >= 0.0 else WIDTH
+        ny = 2 * WIDTH if ivy >= 0.0 else 3 * WIDTH
+        nz = 4 * WIDTH if ivz >= 0.0 else 5 * WIDTH
         t_lo = np.float32(tmin)
         t_hi = np.float32(tmax)  # shrinks to the closest hit so far
 
@@ -396,22 +423,23 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
         ref = np.int32(0)
         while True:
             if ref >= 0:
-                n0, n1, n2, n3, mask = _node_test(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi)
+                lanes, mask = _node_test(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi)
                 if mask != 0:
-                    c = 4 * ref
+                    c = WIDTH * ref
                     first = sp
                     # push the children hit, kept sorted far-to-near, then continue with the nearest
-                    for k in range(4):
-                        if mask & (1 << k):
-                            tn = n0 if k == 0 else (n1 if k == 1 else (n2 if k == 2 else n3))
-                            j = sp
-                            while j > first and _get(stack_t, j - 1) < tn:
-                                _set(stack_ref, j, _get(stack_ref, j - 1))
-                                _set(stack_t, j, _get(stack_t, j - 1))
-                                j -= 1
-                            _set(stack_ref, j, _get(nodes_i, c + k))
-                            _set(stack_t, j, tn)
-                            sp += 1
+                    for k in range(WIDTH):
+                        if not (mask >> k) & 1:
+                            continue
+                        tn = lanes[k]
+                        j = sp
+                        while j > first and _get(stack_t, j - 1) < tn:
+                            _set(stack_ref, j, _get(stack_ref, j - 1))
+                            _set(stack_t, j, _get(stack_t, j - 1))
+                            j -= 1
+                        _set(stack_ref, j, _get(nodes_i, c + k))
+                        _set(stack_t, j, tn)
+                        sp += 1
                     sp -= 1
                     ref = _get(stack_ref, sp)
                     continue
@@ -465,9 +493,9 @@ def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tma
         ivx = _inv_dir(dx)
         ivy = _inv_dir(dy)
         ivz = _inv_dir(dz)
-        nx = 0 if ivx >= 0.0 else 4
-        ny = 8 if ivy >= 0.0 else 12
-        nz = 16 if ivz >= 0.0 else 20
+        nx = 0 if ivx >= 0.0 else WIDTH
+        ny = 2 * WIDTH if ivy >= 0.0 else 3 * WIDTH
+        nz = 4 * WIDTH if ivz >= 0.0 else 5 * WIDTH
         t_lo = np.float32(tmin)
         t_hi = np.float32(tmax)
 
@@ -476,13 +504,15 @@ def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tma
         ref = np.int32(0)
         while True:
             if ref >= 0:
-                n0, n1, n2, n3, mask = _node_test(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi)
+                lanes, mask = _node_test(nodes_f, ref, nx, ny, nz, ox, oy, oz, ivx, ivy, ivz, t_lo, t_hi)
                 if mask != 0:
-                    c = 4 * ref
-                    for k in range(4):
-                        if mask & (1 << k):
-                            _set(stack_ref, sp, _get(nodes_i, c + k))
-                            sp += 1
+                    c = WIDTH * ref
+                    m = mask
+                    while m != 0:
+                        k = _ctz(m)
+                        m &= m - 1
+                        _set(stack_ref, sp, _get(nodes_i, c + k))
+                        sp += 1
                     sp -= 1
                     ref = _get(stack_ref, sp)
                     continue
@@ -557,7 +587,7 @@ def intersect_any(nodes_f, nodes_i, tris_f, tri_ids, origins, directions, tmin, 
 
 
 # --------------------------------------------------------------------------------------------
-# Build: binned SAH binary tree, then collapse to 4-wide nodes
+# Build: binned SAH binary tree, then collapse to WIDTH-wide nodes
 # --------------------------------------------------------------------------------------------
 
 
@@ -813,29 +843,30 @@ def build_binary(tri_lo, tri_hi, centroid, max_leaf, n_bins, trav_cost):
 
 @njit(**KERNEL)
 def collapse_wide(lo, hi, left, start, count):
-    """Collapse a binary BVH into 4-wide nodes (``nodes_f``, ``nodes_i`` of the module layout).
+    """Collapse a binary BVH into WIDTH-wide nodes (``nodes_f``, ``nodes_i`` of the module layout).
 
     Each wide node takes a binary node's two children and repeatedly opens the inner child with
-    the largest surface area until it has 4 children or only leaves.
+    the largest surface area until it has WIDTH children or only leaves.
 
     Returns
     -------
-    nodes_f : (24 * W,) float32 ndarray
-    nodes_i : (4 * W,) int32 ndarray
+    nodes_f : (6 WIDTH n_wide,) float32 ndarray
+    nodes_i : (WIDTH n_wide,) int32 ndarray
     """
     m = left.shape[0]
     cap = max(1, m)
-    nodes_f = np.empty(24 * cap, np.float32)
-    nodes_i = np.full(4 * cap, -1, np.int32)
-    for k in range(24 * cap):
-        nodes_f[k] = np.inf if (k // 4) % 2 == 0 else -np.inf
+    row = 6 * WIDTH
+    nodes_f = np.empty(row * cap, np.float32)
+    nodes_i = np.full(WIDTH * cap, -1, np.int32)
+    for k in range(row * cap):
+        nodes_f[k] = np.inf if (k // WIDTH) % 2 == 0 else -np.inf
     if m == 0:
-        return nodes_f[:24], nodes_i[:4]
+        return nodes_f[:row].copy(), nodes_i[:WIDTH].copy()
     queue = np.empty(cap, np.int64)  # binary node of each wide node
     queue[0] = 0
     n_wide = 1
     head = 0
-    kids = np.empty(4, np.int64)
+    kids = np.empty(WIDTH, np.int64)
     while head < n_wide:
         b = queue[head]
         w = head
@@ -847,7 +878,7 @@ def collapse_wide(lo, hi, left, start, count):
             kids[0] = left[b]
             kids[1] = left[b] + 1
             nk = 2
-        while nk < 4:
+        while nk < WIDTH:
             best = -1
             best_area = -1.0
             for k in range(nk):
@@ -866,21 +897,21 @@ def collapse_wide(lo, hi, left, start, count):
         for k in range(nk):
             c = kids[k]
             for q in range(3):
-                nodes_f[24 * w + 8 * q + k] = lo[c, q]
-                nodes_f[24 * w + 8 * q + 4 + k] = hi[c, q]
+                nodes_f[row * w + 2 * WIDTH * q + k] = lo[c, q]
+                nodes_f[row * w + 2 * WIDTH * q + WIDTH + k] = hi[c, q]
             if left[c] < 0:
                 if count[c] == 0:
-                    nodes_i[4 * w + k] = -1
+                    nodes_i[WIDTH * w + k] = -1
                     for q in range(3):
-                        nodes_f[24 * w + 8 * q + k] = np.inf
-                        nodes_f[24 * w + 8 * q + 4 + k] = -np.inf
+                        nodes_f[row * w + 2 * WIDTH * q + k] = np.inf
+                        nodes_f[row * w + 2 * WIDTH * q + WIDTH + k] = -np.inf
                 else:
-                    nodes_i[4 * w + k] = ~((start[c] << 3) | count[c])
+                    nodes_i[WIDTH * w + k] = ~((start[c] << 3) | count[c])
             else:
                 queue[n_wide] = c
-                nodes_i[4 * w + k] = n_wide
+                nodes_i[WIDTH * w + k] = n_wide
                 n_wide += 1
-    return nodes_f[: 24 * n_wide].copy(), nodes_i[: 4 * n_wide].copy()
+    return nodes_f[: row * n_wide].copy(), nodes_i[: WIDTH * n_wide].copy()
 
 
 @njit(**KERNEL)
