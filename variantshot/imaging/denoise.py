@@ -193,30 +193,29 @@ def _sanitise_radiance(rgb: np.ndarray, nonfinite: str) -> np.ndarray:
     return out
 
 
-def _window_sums(a: np.ndarray, radius: int) -> np.ndarray:
-    """Sum of ``a`` (H, W) over the (2r+1)² window around each pixel, clipped to the image."""
-    h, w = a.shape
-    c = np.zeros((h + 1, w + 1), np.float64)
-    np.cumsum(np.cumsum(a, axis=0), axis=1, out=c[1:, 1:])
-    y0 = np.clip(np.arange(h) - radius, 0, h)
-    y1 = np.clip(np.arange(h) + radius + 1, 0, h)
-    x0 = np.clip(np.arange(w) - radius, 0, w)
-    x1 = np.clip(np.arange(w) + radius + 1, 0, w)
-    return c[y1][:, x1] - c[y0][:, x1] - c[y1][:, x0] + c[y0][:, x0]
-
-
 def _box_mean(a: np.ndarray, radius: int) -> np.ndarray:
-    """Mean of ``a`` (H, W) over the in-image part of the (2r+1)² window around each pixel.
+    """Mean of ``a`` (H, W) or (H, W, C) over the in-image part of the (2r+1)² window of each pixel.
 
     Windows are cut at the border rather than padded: edge padding would repeat the border
-    row's noise ``r`` times and bias the correction there.
+    row's noise ``r`` times and bias the correction there.  The window is a rectangle, so the
+    mean is separable: a running-sum mean down the columns, then along the rows.
     """
+    out = np.asarray(a, np.float64)
     if radius <= 0:
-        return np.asarray(a, np.float64).copy()
-    h, w = a.shape
-    rows = np.minimum(np.arange(h) + radius + 1, h) - np.maximum(np.arange(h) - radius, 0)
-    cols = np.minimum(np.arange(w) + radius + 1, w) - np.maximum(np.arange(w) - radius, 0)
-    return _window_sums(np.asarray(a, np.float64), radius) / (rows[:, None] * cols[None, :])
+        return out.copy()
+    for axis in (0, 1):
+        n = out.shape[axis]
+        moved = np.moveaxis(out, axis, 0)
+        # e[j] = sum of moved[: j - r] (0 before the image, the full sum after it), so the
+        # window [i - r, i + r] cut to the image sums to e[i + 2r + 1] - e[i]
+        e = np.zeros((n + 2 * radius + 1,) + moved.shape[1:], np.float64)
+        np.cumsum(moved, axis=0, out=e[radius + 1 : radius + 1 + n])
+        e[radius + 1 + n :] = e[radius + n]
+        idx = np.arange(n)
+        count = (np.minimum(idx + radius + 1, n) - np.maximum(idx - radius, 0)).astype(np.float64)
+        sums = e[2 * radius + 1 : 2 * radius + 1 + n] - e[:n]
+        out = np.moveaxis(sums / count.reshape((n,) + (1,) * (moved.ndim - 1)), 0, axis)
+    return np.ascontiguousarray(out)
 
 
 def restore_local_means(rgb_noisy, rgb_denoised, radius_px: int = MEAN_RADIUS_PX) -> np.ndarray:
@@ -240,15 +239,13 @@ def restore_local_means(rgb_noisy, rgb_denoised, radius_px: int = MEAN_RADIUS_PX
     noisy = np.asarray(rgb_noisy, np.float64)
     out = np.maximum(np.asarray(rgb_denoised, np.float64), 0.0)
     ref = np.minimum(noisy, _FIREFLY_CLAMP * out)
-    result = np.empty_like(out)
-    for k in range(3):
-        b_ref = _box_mean(ref[..., k], int(radius_px))
-        b_out = _box_mean(out[..., k], int(radius_px))
-        tiny = 1e-12 * max(float(b_out.max(initial=0.0)), 1e-300)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            factor = np.where(b_out > tiny, b_ref / np.maximum(b_out, tiny), 1.0)
-        result[..., k] = out[..., k] * np.clip(factor, _FACTOR_MIN, _FACTOR_MAX)
-    return result
+    b_ref = _box_mean(ref, int(radius_px))
+    b_out = _box_mean(out, int(radius_px))
+    # per channel: where the local denoised mean is (numerically) zero, leave the pixel alone
+    tiny = 1e-12 * np.maximum(b_out.max(axis=(0, 1)), 1e-300)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        factor = np.where(b_out > tiny, b_ref / np.maximum(b_out, tiny), 1.0)
+    return out * np.clip(factor, _FACTOR_MIN, _FACTOR_MAX)
 
 
 def denoise(
