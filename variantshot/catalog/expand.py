@@ -176,15 +176,16 @@ def _environment(templates_dir: str):
     return env
 
 
-def _template_line(exc: BaseException, template_file: str) -> int | None:
-    lineno = getattr(exc, "lineno", None)
-    if lineno and getattr(exc, "filename", None):
-        return lineno
-    line = None
+def _template_place(exc: BaseException, template_file: str) -> tuple[str, int | None]:
+    """``(template file, line)`` where a template error happened (an included file if there)."""
+    if getattr(exc, "lineno", None) and getattr(exc, "filename", None):  # syntax errors
+        return exc.filename, exc.lineno
+    place = (template_file, getattr(exc, "lineno", None))
     for frame in traceback.extract_tb(exc.__traceback__):
+        # Jinja rewrites tracebacks so that template frames carry the template's file and line
         if frame.filename and (frame.filename == template_file or frame.filename.endswith(".j2")):
-            line = frame.lineno
-    return line or lineno
+            place = (frame.filename, frame.lineno)
+    return place
 
 
 def render_template(product: Product, library: Library, variant: Variant) -> str:
@@ -230,7 +231,7 @@ def render_template(product: Product, library: Library, variant: Variant) -> str
         template_file = template.filename or template_file
         return template.render(context)
     except TemplateError as exc:
-        line = _template_line(exc, template_file)
+        file, line = _template_place(exc, template_file)
         kind = type(exc).__name__
         message = exc.message if getattr(exc, "message", None) else str(exc)
         if kind == "TemplateNotFound":
@@ -239,12 +240,11 @@ def render_template(product: Product, library: Library, variant: Variant) -> str
                        f"{display_path(library.templates_dir)}")
         elif kind == "SecurityError":
             message = f"refused by the template sandbox: {message}"
-        raise InputError(f"{message} ({where})", file=display_path(template_file), row=line,
-                         accepted=None) from None
+        raise InputError(f"{message} ({where})", file=display_path(file), row=line) from None
     except Exception as exc:  # errors raised by Python code the template called
-        line = _template_line(exc, template_file)
-        raise InputError(f"{type(exc).__name__}: {exc} ({where})", file=display_path(template_file),
-                         row=line) from None
+        file, line = _template_place(exc, template_file)
+        text = str(exc) if isinstance(exc, TemplateColourError) else f"{type(exc).__name__}: {exc}"
+        raise InputError(f"{text} ({where})", file=display_path(file), row=line) from None
 
 
 # ----------------------------------------------------------------------------- expansion

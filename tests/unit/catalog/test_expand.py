@@ -235,3 +235,12 @@ def test_buffer_uris_cannot_reach_outside_the_model_and_template_folders(tmp_pat
     lines = expand_errors(path, tdir, tmp_path / "out")
     assert any("/buffers/0: uri" in line and "points outside the model and templates folders" in line
                for line in lines), lines
+
+
+def test_error_in_an_included_template_names_that_file(tmp_path, repo_dir):
+    text = SCENE.replace('"scene": 0,', '"scene": 0,\n  {% include "parts/extra.j2" %}')
+    tdir = make_library(tmp_path, repo_dir, {"tri.gltf.j2": text, "parts/extra.j2": '"a": 1,\n"b": {{ row.nope }},'})
+    path = write_catalog(tmp_path, "T-1,tri,#ff8000,gloss,n\n")
+    (line,) = expand_errors(path, tdir, tmp_path / "out")
+    assert line.split(": ", 1)[0] == f"{tdir / 'parts' / 'extra.j2'}:2", line
+    assert "has no attribute 'nope'" in line
