@@ -127,3 +127,19 @@ def test_check_reports_a_broken_model(repo_dir, tmp_path):
     result = run("check", tmp_path / "catalog" / "demo.csv")
     assert result.exit_code == 2
     assert any("mug.gltf: /buffers/0: byteLength" in line for line in result.stderr.splitlines()), result.stderr
+
+
+def test_expand_respects_the_output_lock(repo_dir, tmp_path):
+    from variantshot.batch.lock import acquire_lock
+
+    out = tmp_path / "out"
+    with acquire_lock(out):  # this process is alive, so the lock is live
+        import subprocess
+        import sys
+
+        # from another process: exit 3 (DESIGN.md: another run holds the output folder's lock)
+        proc = subprocess.run([sys.executable, "-c", "from variantshot.cli.main import app; app()", "expand",
+                               str(repo_dir / "catalog" / "demo.csv"), "--out", str(out)],
+                              capture_output=True, text=True)
+    assert proc.returncode == 3, proc.stderr
+    assert not (out / "scenes").exists()

@@ -599,7 +599,9 @@ def write_scenes(scenes: list[ExpandedScene], out_dir) -> list[Path]:
 def expand_catalog(path, out_dir, *, templates_dir=None, progress=None):
     """Check a catalog completely, then write every variant's scene to ``<out_dir>/scenes/``.
 
-    Nothing is written when the catalog, a template or a model has an error.
+    Nothing is written when the catalog, a template or a model has an error.  The output
+    folder's lock (:mod:`variantshot.batch.lock`) is held while writing, so ``expand`` and a
+    batch never write the same folder at once.
 
     Returns
     -------
@@ -608,12 +610,16 @@ def expand_catalog(path, out_dir, *, templates_dir=None, progress=None):
     Raises
     ------
     InputErrors
+    LockedError
+        Another run holds the output folder.
     """
+    from ..batch.lock import acquire_lock
     from .validate import read_catalog
 
     catalog = read_catalog(path, templates_dir=templates_dir)
     report = check_expanded(catalog, progress=progress)
-    return report, write_scenes(report.scenes, out_dir)
+    with acquire_lock(out_dir):  # a batch writing the same folder holds it (LockedError)
+        return report, write_scenes(report.scenes, out_dir)
 
 
 __all__ = [
