@@ -81,3 +81,17 @@ def test_screenshot_is_not_blank(chromium, sheet, tmp_path):
     keep = os.environ.get("VARIANTSHOT_KEEP_SCREENSHOT")
     if keep:
         shutil.copy(png, keep)
+
+
+def test_filters_from_the_address_hide_other_shots(chromium, sheet, tmp_path):
+    page, n_images = sheet
+    url = page.as_uri() + "?approval=approved&product=mug"
+    res = _run(chromium, tmp_path / "profile", "--dump-dom", url)
+    assert res.returncode == 0, res.stderr[-2000:]
+    dom = res.stdout
+    figures = re.findall(r'<figure class="cell( hidden)?"[^>]*data-approval="(\w+)"', dom)
+    shown = [state for hidden, state in figures if not hidden]
+    # the four MUG shots were approved in the fixture; everything else is hidden by the script
+    assert shown == ["approved"] * 4
+    assert len(figures) == n_images + 1  # the failed render has a figure too, without an <img>
+    assert f"4 of {n_images + 1} shots shown" in dom

@@ -22,6 +22,8 @@ import urllib.parse
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
+
 from .._atomic import atomic_write
 from ..errors import InputError
 from . import approvals as _approvals
@@ -78,6 +80,7 @@ class SheetCell:
     image: str | None  # relative to the output folder
     image_path: Path | None
     error: str | None
+    transparent: bool = False  # the shot has a transparent background
 
 
 def _qa_notes(qa: dict | None) -> tuple[tuple[str, str], ...]:
@@ -120,6 +123,7 @@ def collect_cells(out_dir, *, approved_only: bool = False) -> list[SheetCell]:
             image=image,
             image_path=path if (path is not None and path.is_file()) else None,
             error=e.get("error"),
+            transparent=e.get("background") == "transparent",
         ))
     return cells
 
@@ -204,14 +208,17 @@ def _thumbnail(path: Path | None):
             im = im.convert("RGBA")
     except (OSError, ValueError):
         return None
-    im.thumbnail((THUMB, THUMB), Image.Resampling.LANCZOS)
-    if im.getextrema()[3][0] < 255:  # some transparency: show it as a checkerboard
-        board = Image.new("RGBA", im.size, (255, 255, 255, 255))
-        px = board.load()
-        for y in range(im.size[1]):
-            for x in range(im.size[0]):
-                if (x // 8 + y // 8) % 2:
-                    px[x, y] = (226, 226, 230, 255)
+    # scale to fit the box, up as well as down, so every thumbnail has the same size
+    from PIL import ImageOps
+
+    im = ImageOps.contain(im, (THUMB, THUMB), Image.Resampling.LANCZOS)
+    if im.getextrema()[3][0] < 255:  # some transparency: show it over a checkerboard
+        w, h = im.size
+        yy, xx = np.mgrid[0:h, 0:w]
+        dark = ((xx // 8 + yy // 8) % 2).astype(bool)
+        board = np.full((h, w, 4), 255, np.uint8)
+        board[dark, :3] = (226, 226, 230)
+        board = Image.fromarray(board, "RGBA")
         board.alpha_composite(im)
         im = board
     return im.convert("RGB")

@@ -4,6 +4,7 @@ import csv
 import html.parser
 import json
 
+import numpy as np
 import pytest
 from PIL import Image
 
@@ -114,3 +115,23 @@ def test_text_fitting_never_exceeds_width():
     assert sheets._ellipsis(long, font, 120).endswith("…")
     assert font.getlength(sheets._ellipsis(long, font, 120)) <= 120
     assert sheets._ellipsis("short", font, 120) == "short"
+
+
+def test_transparent_shots_show_a_checkerboard_and_opaque_ones_do_not(tmp_path):
+    from unit.review._batch import draw_shot, rerender, write_manifest
+
+    out = tmp_path / "out"
+    make_batch(out, variants=DEFAULT_VARIANTS[:1], angles=["front", "back"])
+    shots = rerender(out, "MUG-001-RED--back", draw_shot(120, "#B03A2E", transparent=True))
+    shots["MUG-001-RED--back"]["background"] = "transparent"
+    write_manifest(out, shots)
+    sheets.build_sheets(out, formats=("png",))
+    with Image.open(out / "sheets/contact-sheet.png") as im:
+        arr = np.asarray(im.convert("RGB"))
+    y0 = sheets.HEADER_H + sheets.ANGLE_HEADER_H + sheets.PAD
+    x_front = sheets.MARGIN + sheets.PAD
+    x_back = x_front + sheets.CELL_W + 8
+    box = (slice(y0, y0 + 20), slice(None))  # the top band of the thumbnails: background only
+    checker = np.all(arr[box] == (226, 226, 230), axis=2)
+    assert not checker[:, x_front:x_front + sheets.THUMB].any()
+    assert checker[:, x_back:x_back + sheets.THUMB].mean() > 0.3
