@@ -43,6 +43,17 @@ def quad(centre, u_half, v_half):
     return pos, np.array([[0, 1, 2], [0, 2, 3]], np.int32)
 
 
+def facing_quad(centre, target, width, height):
+    """A width x height rectangle at ``centre`` whose front face looks at ``target``."""
+    c = np.asarray(centre, float)
+    n = np.asarray(target, float) - c
+    n /= np.linalg.norm(n)
+    u = np.cross((0.0, 1.0, 0.0), n)
+    u /= np.linalg.norm(u)
+    v = np.cross(n, u)
+    return quad(c, 0.5 * width * u, 0.5 * height * v)  # front normal u x v = n
+
+
 def disk(centre, normal, radius, n_seg=256):
     """Triangle fan disk facing ``normal`` (front side)."""
     c = np.asarray(centre, float)
@@ -107,8 +118,9 @@ def uniform_env(value):
 
 
 def product_scene(sphere_res=(48, 96)):
-    """Product-on-backdrop studio scene: a red glossy sphere and a gold metal sphere on a white
-    cove, a key and a fill soft box (emissive quads) and a dim rim box; returns (scene, camera)."""
+    """Product-on-backdrop studio scene: a red glossy sphere, a gold metal sphere and a green
+    card on a white floor-and-wall backdrop, a key and a fill soft box (emissive quads facing the
+    product); returns (scene, camera)."""
     parts = []
     mats = [
         Material(name="backdrop", base_colour_factor=(0.8, 0.8, 0.8, 1.0), metallic_factor=0.0,
@@ -137,18 +149,9 @@ def product_scene(sphere_res=(48, 96)):
     parts.append((sp, st, 2, sn))
     card = quad((0.9, 0.5, -0.6), (0.35, 0, 0.2), (0, 0.5, 0))
     parts.append((*card, 5, None))
-    key = quad((-1.6, 2.2, 1.2), (0.6, 0, 0.6), (0.35, -0.5, -0.35))
-    kp, kt = key
-    # make the key face the product
-    fn = np.cross(kp[1] - kp[0], kp[2] - kp[0])
-    if fn @ (np.array([0, 0.5, 0]) - kp.mean(0)) < 0:
-        kt = kt[:, ::-1].copy()
-    parts.append((kp, kt, 3, None))
-    fp, ft = quad((2.2, 1.2, 1.5), (-0.4, 0, 0.55), (0, 0.6, 0))
-    fn = np.cross(fp[1] - fp[0], fp[2] - fp[0])
-    if fn @ (np.array([0, 0.5, 0]) - fp.mean(0)) < 0:
-        ft = ft[:, ::-1].copy()
-    parts.append((fp, ft, 4, None))
+    target = np.array([0.0, 0.5, 0.0])
+    parts.append((*facing_quad((-1.8, 2.4, 1.6), target, 1.2, 0.9), 3, None))  # key: upper left front
+    parts.append((*facing_quad((2.4, 1.3, 1.4), target, 0.9, 1.4), 4, None))  # fill: right
     pos, tris, tri_mat, nrm = combine(parts)
     scene = make_scene(pos, tris, normals=nrm, tri_material=tri_mat, materials=mats, source="product-on-backdrop")
     cam = camera((0.0, 1.3, 4.2), (0.0, 0.5, 0.0), yfov_rad=0.6)

@@ -48,6 +48,7 @@ COMMANDS: list[tuple[str, str]] = [
     ("approve", "variantshot.cli.approve:approve"),
     ("reject", "variantshot.cli.approve:reject"),
     ("sheet", "variantshot.cli.sheet:sheet"),
+    ("trace", "variantshot.cli.trace:trace"),
 ]
 
 for _name, _target in COMMANDS:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..errors import RenderError
+from ..errors import InputError, RenderError
 from ..geometry.scene import Camera, Scene
 
 #: Sensor height used to turn a field of view into a focal length for the f-number
@@ -35,7 +35,7 @@ def choose_camera(scene: Scene, name: str | None, aspect: float) -> Camera:
             if cam.name == name:
                 return cam
         known = ", ".join(repr(c.name) for c in scene.cameras) or "none"
-        raise RenderError(f"{scene.source}: no camera named {name!r} (cameras in the scene: {known})")
+        raise InputError(f"no camera named {name!r}", file=scene.source, accepted=known)
     if scene.cameras:
         return scene.cameras[0]
     lo, hi = scene.bounds()

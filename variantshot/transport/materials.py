@@ -25,6 +25,13 @@ from ..errors import RenderError
 from ..geometry.scene import Material, Scene
 from .textures import AtlasBuilder, TextureAtlas, transform_matrix
 
+#: glTF extensions the path tracer interprets (KHR_materials_specular: specularFactor only;
+#: KHR_texture_transform on every texture slot).  The catalog checker reads this list.
+SUPPORTED_EXTENSIONS = frozenset(
+    {"KHR_materials_emissive_strength", "KHR_materials_ior", "KHR_materials_specular", "KHR_texture_transform",
+     "KHR_lights_punctual"}
+)
+
 N_COLUMNS = 64
 ALPHA_MODES = {"OPAQUE": 0, "MASK": 1, "BLEND": 2}
 SLOT_BASE_COLOUR = 16
