@@ -39,7 +39,7 @@ EXPORT_FIELDS = ("id", "sku", "colourway", "finish", "angle", "path", "width", "
 THUMB = 220  # thumbnail box side
 PAD = 12  # cell padding
 CELL_W = THUMB + 2 * PAD
-CAPTION_H = 128
+CAPTION_H = 146
 CELL_H = PAD + THUMB + CAPTION_H
 MARGIN = 24
 HEADER_H = 136
@@ -224,15 +224,19 @@ def _thumbnail(path: Path | None):
     return im.convert("RGB")
 
 
+def _badge_width(word: str) -> int:
+    return int(_font(12, bold=True).getlength(word)) + 31
+
+
 def _badge(draw, x: int, y: int, kind: str, word: str, colour, *, outline_only: bool = False) -> int:
     """Draw a rounded badge with a drawn symbol and a word; return its width."""
     font = _font(12, bold=True)
     h = 22
-    w = int(font.getlength(word)) + 36
+    w = _badge_width(word)
     fill = None if outline_only else colour
     draw.rounded_rectangle([x, y, x + w, y + h], radius=6, fill=fill, outline=colour, width=2)
     ink = colour if outline_only else (255, 255, 255)
-    cx, cy = x + 12, y + h // 2
+    cx, cy = x + 11, y + h // 2
     if kind in ("pass", "approved"):  # tick
         draw.line([(cx - 5, cy), (cx - 1, cy + 4), (cx + 6, cy - 5)], fill=ink, width=3)
     elif kind in ("fail", "rejected"):  # cross
@@ -243,7 +247,7 @@ def _badge(draw, x: int, y: int, kind: str, word: str, colour, *, outline_only: 
         draw.ellipse([cx - 2, cy + 4, cx + 2, cy + 8], fill=ink)
     else:  # pending / no QA: an open circle
         draw.ellipse([cx - 5, cy - 5, cx + 5, cy + 5], outline=ink, width=2)
-    draw.text((x + 24, cy), word, font=font, fill=ink, anchor="lm")
+    draw.text((x + 22, cy), word, font=font, fill=ink, anchor="lm")
     return w
 
 
@@ -275,12 +279,14 @@ def _draw_cell(page, draw, x: int, y: int, cell: SheetCell | None) -> None:
     tw = CELL_W - 2 * PAD
     draw.text((bx, ty), _ellipsis(cell.sku, _font(15, True), tw), font=_font(15, True), fill=_INK)
     ty += 20
-    sub = " · ".join(p for p in (cell.colourway, cell.finish) if p) or "—"
-    for line in _wrap(sub, _font(13), tw, 2):
+    lines = _wrap(cell.colourway or "—", _font(13), tw, 2)
+    for line in lines:
         draw.text((bx, ty), line, font=_font(13), fill=_INK)
         ty += 17
-    if len(_wrap(sub, _font(13), tw, 2)) < 2:
-        ty += 17
+    ty += 17 * (2 - len(lines))  # keep the rows below aligned across cells
+    draw.text((bx, ty), _ellipsis(f"finish: {cell.finish or '—'}", _font(12), tw), font=_font(12),
+              fill=_INK)
+    ty += 16
     draw.text((bx, ty), _ellipsis(f"angle: {cell.angle}", _font(12), tw), font=_font(12), fill=_MUTED)
     ty += 20
     if cell.status != "rendered":
@@ -290,8 +296,13 @@ def _draw_cell(page, draw, x: int, y: int, cell: SheetCell | None) -> None:
         qa_key = cell.qa_status if cell.qa_status in (PASS, WARN, FAIL) else None
         w = _badge(draw, bx, ty, qa_kind, _QA_WORD[qa_key], _QA_COLOUR[qa_key],
                    outline_only=qa_key is None)
-    _badge(draw, bx + w + 6, ty, cell.approval, _APPROVAL_WORD[cell.approval],
-           _APPROVAL_COLOUR[cell.approval], outline_only=cell.approval == _approvals.PENDING)
+    word = _APPROVAL_WORD[cell.approval]
+    ax = bx + w + 6
+    if cell.status == "rendered":  # a shot without an image has nothing to approve
+        if ax + _badge_width(word) > bx + tw:  # no room beside the QA badge: the next line
+            ax, ty = bx, ty + 26
+        _badge(draw, ax, ty, cell.approval, word, _APPROVAL_COLOUR[cell.approval],
+               outline_only=cell.approval == _approvals.PENDING)
     ty += 27
     if cell.qa_notes:
         note = ", ".join(short for short, _ in cell.qa_notes)
