@@ -176,7 +176,7 @@ def plan_shots(catalog, out_dir, settings=None, *, rig: str | None = None, templ
     else:
         if not isinstance(catalog, Catalog):
             catalog = read_catalog(catalog, templates_dir=templates_dir)
-        report = check_expanded(catalog, progress=progress)
+        report = check_expanded(catalog, progress=progress, keep_documents=False)
     library = report.catalog.library
     default_rig = rig or default_rig_name()
     batch_background = _settings_background(settings) or "white"

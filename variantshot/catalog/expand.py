@@ -457,12 +457,17 @@ def check_models(catalog: Catalog) -> list[InputError]:
     return errors
 
 
-def check_expanded(catalog: Catalog, *, supported_extensions=None, progress=None) -> CheckReport:
+def check_expanded(catalog: Catalog, *, supported_extensions=None, progress=None,
+                   keep_documents: bool = True) -> CheckReport:
     """Expand every variant of a checked catalog in memory and collect every problem.
 
     Template problems are reported once per (template, line, message) with the first row and
     the number of rows affected.  Finishes and scenes using extensions the renderer does not
     render yet become warnings naming the first row (the scene keeps the extension).
+
+    With ``keep_documents=False`` each scene keeps only ``asset`` and ``extensionsUsed`` of its
+    glTF (enough for checking and planning), so a large catalog does not hold every scene in
+    memory; such scenes cannot be written.
 
     Raises
     ------
@@ -476,7 +481,12 @@ def check_expanded(catalog: Catalog, *, supported_extensions=None, progress=None
     total = len(catalog.variants)
     for k, variant in enumerate(catalog.variants):
         try:
-            scenes.extend(expand_variant(variant, catalog.library, cache=cache))
+            expanded = expand_variant(variant, catalog.library, cache=cache)
+            if not keep_documents:
+                for e in expanded:
+                    e.gltf = {"asset": e.gltf.get("asset", {}), "extensionsUsed": e.gltf.get("extensionsUsed", [])}
+                    e.resources = {}
+            scenes.extend(expanded)
         except InputErrors as exc:
             for e in exc.errors:
                 if e.file == variant.file:
@@ -576,6 +586,8 @@ def write_scenes(scenes: list[ExpandedScene], out_dir) -> list[Path]:
     list of Path
         The scene files written, in catalog order.
     """
+    if any("scenes" not in s.gltf for s in scenes):
+        raise ValueError("write_scenes needs full scene documents (check_expanded(keep_documents=True))")
     folder = Path(out_dir) / "scenes"
     cache = _BufferCache()
     docs, copies = scene_documents(scenes, cache)

@@ -357,8 +357,9 @@ def check_catalog(path, *, templates_dir=None):
     Returns
     -------
     CheckReport
-        ``catalog``, ``scenes`` (the expanded scenes, in memory) and ``warnings``
-        (including finishes whose extensions the renderer does not render yet).
+        ``catalog``, ``scenes`` (the expanded scenes, reduced to their ``asset`` and
+        ``extensionsUsed``) and ``warnings`` (including finishes whose extensions the renderer
+        does not render yet).
 
     Raises
     ------
@@ -368,4 +369,4 @@ def check_catalog(path, *, templates_dir=None):
     from .expand import check_expanded  # noqa: PLC0415  (expand imports this module)
 
     catalog = read_catalog(path, templates_dir=templates_dir)
-    return check_expanded(catalog)
+    return check_expanded(catalog, keep_documents=False)
