@@ -73,11 +73,21 @@ from .validate import Catalog, Library, Product, closest, unknown_name_message
 log = logging.getLogger(__name__)
 
 
+@functools.lru_cache(maxsize=4096)
+def _resolve_str(text: str) -> Path:
+    return Path(text).resolve()
+
+
+def _resolved(path) -> Path:
+    """``Path(path).resolve()``, memoised (expansion resolves the same few paths per row)."""
+    return _resolve_str(str(path))
+
+
 def display_path(path) -> str:
     """``path`` relative to the working folder when it is below it (for messages)."""
     p = Path(path)
     try:
-        return str(p.resolve().relative_to(Path.cwd().resolve()))
+        return str(_resolved(p).relative_to(_resolved(Path.cwd())))
     except ValueError:
         return str(p)
 
@@ -198,10 +208,10 @@ def render_template(product: Product, library: Library, variant: Variant) -> str
     """
     from jinja2 import TemplateError
 
-    env = _environment(str(library.templates_dir.resolve()))
+    env = _environment(str(_resolved(library.templates_dir)))
     where = f"catalog {variant.file}:{variant.line}, sku {variant.sku}"
     try:
-        name = product.template.resolve().relative_to(library.templates_dir.resolve()).as_posix()
+        name = _resolved(product.template).relative_to(_resolved(library.templates_dir)).as_posix()
     except ValueError:
         raise InputError(f"template {product.template} is outside the templates folder", file=product.template,
                          accepted=f"a template in {library.templates_dir}") from None
@@ -225,7 +235,7 @@ def render_template(product: Product, library: Library, variant: Variant) -> str
         "sku": variant.sku,
         "material": material,
     }
-    template_file = str(product.template.resolve())
+    template_file = str(_resolved(product.template))
     try:
         template = env.get_template(name)
         template_file = template.filename or template_file
@@ -258,7 +268,7 @@ class _BufferCache:
         self.geometry: dict[str, tuple] = {}
 
     def read(self, path: Path) -> bytes | None:
-        path = path.resolve()
+        path = _resolved(path)
         if path not in self.files:
             try:
                 self.files[path] = path.read_bytes()
@@ -275,7 +285,7 @@ def _external_resources(gltf: dict, base_dir: Path) -> dict:
         for i, item in enumerate(gltf.get(kind, []) or []):
             uri = item.get("uri") if isinstance(item, dict) else None
             if uri and not uri.startswith("data:"):
-                out[(kind, i)] = resolve_uri(uri, base_dir).resolve()
+                out[(kind, i)] = _resolved(resolve_uri(uri, base_dir))
     return out
 
 
@@ -332,7 +342,7 @@ def expand_variant(variant: Variant, library: Library, *, cache: _BufferCache | 
         if used or gltf.get("extensionsUsed"):
             gltf["extensionsUsed"] = sorted(set(used) | set(gltf.get("extensionsUsed", [])))
         resources = _external_resources(gltf, base_dir)
-        allowed = [base_dir.resolve(), library.templates_dir.resolve()]
+        allowed = [_resolved(base_dir), _resolved(library.templates_dir)]
         outside = [(k, p) for k, p in resources.items() if not any(_inside(p, folder) for folder in allowed)]
         if outside:
             raise InputErrors([InputError(
@@ -408,11 +418,11 @@ def expand_variant(variant: Variant, library: Library, *, cache: _BufferCache | 
             "rig": variant.rig,
             "catalog_row": variant.line,
         }
-        inputs = [product.template.resolve()]
+        inputs = [_resolved(product.template)]
         if product.model is not None:
-            inputs.append(product.model.resolve())
+            inputs.append(_resolved(product.model))
         inputs.extend(sorted(set(resources.values())))
-        inputs.append(Path(library.finishes[variant.finish].source).resolve())
+        inputs.append(_resolved(library.finishes[variant.finish].source))
         out.append(ExpandedScene(
             variant=variant, sku=sku, safe_name=safe_file_name(sku) if derived else variant.safe_sku,
             material_variant=mv_name, gltf=gltf, resources=resources, angles=tuple(angles), cameras=cameras,

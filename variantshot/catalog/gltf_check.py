@@ -88,7 +88,7 @@ def _extensions_in(obj, found: set[str]) -> None:
             if key == "extensions" and isinstance(value, dict):
                 found.update(value.keys())
             _extensions_in(value, found)
-    elif isinstance(obj, list):
+    elif isinstance(obj, list) and obj and isinstance(obj[0], (dict, list)):  # skip lists of numbers
         for v in obj:
             _extensions_in(v, found)
 
