@@ -304,6 +304,18 @@ def validate_rows(table, library: Library) -> tuple[list[Variant], list[InputErr
     return variants, errors, warnings
 
 
+MAX_REPORTED_ERRORS = 500
+
+
+def _capped(errors: list[InputError], file: str) -> list[InputError]:
+    """The first :data:`MAX_REPORTED_ERRORS` errors and one line saying how many more there are."""
+    if len(errors) <= MAX_REPORTED_ERRORS:
+        return errors
+    more = len(errors) - MAX_REPORTED_ERRORS
+    return errors[:MAX_REPORTED_ERRORS] + [InputError(
+        f"... and {more} more error(s) not shown (the first {MAX_REPORTED_ERRORS} are above)", file=file)]
+
+
 def read_catalog(path, *, templates_dir=None, library: Library | None = None, data: bytes | None = None) -> Catalog:
     """Read and row-check a catalog CSV.
 
@@ -346,7 +358,7 @@ def read_catalog(path, *, templates_dir=None, library: Library | None = None, da
                                  column="sku", accepted="one row per variant"))
     if errors:
         errors.sort(key=lambda e: (e.row if isinstance(e.row, int) else 0))
-        raise InputErrors(errors)
+        raise InputErrors(_capped(errors, str(path)))
     return Catalog(file=str(path), path=path, columns=table.columns, variants=variants, library=library,
                    warnings=warnings, sha256=hashlib.sha256(data).hexdigest())
 

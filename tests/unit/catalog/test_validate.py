@@ -158,3 +158,16 @@ def test_libraries_are_found_next_to_the_catalog(tmp_path, repo_dir):
     cat = read_catalog(repo_dir / "catalog" / "demo.csv")
     assert Path(cat.library.templates_dir).resolve() == (repo_dir / "templates").resolve()
     assert {"bottle", "mug", "speaker"} <= set(cat.library.products)
+
+
+def test_a_flood_of_errors_is_capped_with_a_count(tmp_path, repo_dir):
+    from variantshot.catalog.validate import MAX_REPORTED_ERRORS
+
+    rows = "\n".join(f"S-{i},bottle,#12,matte" for i in range(MAX_REPORTED_ERRORS + 40))
+    path = tmp_path / "c.csv"
+    path.write_text(f"{HEADER}\n{rows}\n")
+    with pytest.raises(InputErrors) as info:
+        read_catalog(path, templates_dir=repo_dir / "templates")
+    errors = info.value.errors
+    assert len(errors) == MAX_REPORTED_ERRORS + 1
+    assert errors[-1].format() == f"{path}: ... and 40 more error(s) not shown (the first {MAX_REPORTED_ERRORS} are above)"
