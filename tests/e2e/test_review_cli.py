@@ -103,7 +103,7 @@ def test_sheet_command_writes_files(batch):
     r = run("sheet", batch, "--approved-only", "--format", "pdf")
     assert r.exit_code == 0, r.output
     assert (batch / "sheets/approved-sheet.pdf").is_file()
-    assert len(json.loads((batch / "sheets/approved.json").read_text())["shots"]) == 4
+    assert len(json.loads((batch / "sheets/approved.json").read_text())["files"]) == 4
     assert run("sheet", batch, "--format", "gif").exit_code == 2
 
 

@@ -16,6 +16,7 @@ folder; this module never writes the manifest.
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
 import difflib
 import fnmatch
@@ -202,6 +203,31 @@ def record_decision(out_dir, shot_ids, state: str, *, by: str | None = None, not
         raise InputError(f"unknown review state {state!r}", accepted="approved, rejected")
     out_dir = Path(out_dir)
     shots = load_manifest(out_dir)
+    with _decisions_lock(out_dir):  # two reviewers at once must not lose each other's decisions
+        return _record(out_dir, shots, shot_ids, state, by, note, at)
+
+
+@contextlib.contextmanager
+def _decisions_lock(out_dir: Path):
+    """An exclusive advisory lock (``.approvals.lock``) around read-modify-write of approvals.json.
+
+    A separate lock from the batch's output-folder lock, so a review can happen while a batch
+    renders.  Where ``fcntl`` is missing (Windows) the atomic write alone protects the file.
+    """
+    try:
+        import fcntl
+    except ImportError:
+        yield
+        return
+    with open(out_dir / ".approvals.lock", "a+b") as handle:
+        fcntl.flock(handle.fileno(), fcntl.LOCK_EX)
+        try:
+            yield
+        finally:
+            fcntl.flock(handle.fileno(), fcntl.LOCK_UN)
+
+
+def _record(out_dir: Path, shots: dict, shot_ids, state, by, note, at) -> list[Decision]:
     decisions = load_approvals(out_dir)
     shot_ids = resolve_shots(shot_ids, shots, file=out_dir / MANIFEST_FILE)
     not_rendered = [sid for sid in shot_ids

@@ -32,8 +32,8 @@ from .qa import CAUTION, FAIL, PASS, WARN
 __all__ = ["SheetCell", "collect_cells", "build_sheets", "export_approved", "SHEET_FORMATS"]
 
 SHEET_FORMATS = ("png", "pdf", "html")
-EXPORT_FIELDS = ("id", "sku", "colourway", "finish", "angle", "path", "width", "height", "bytes",
-                 "content_hash")
+EXPORT_FIELDS = ("id", "sku", "colourway", "finish", "angle", "primary", "path", "format", "width",
+                 "height", "bytes", "sha256")
 
 # --- layout (pixels) ---------------------------------------------------------------------------
 THUMB = 220  # thumbnail box side
@@ -401,25 +401,40 @@ def _html(out_dir: Path, cells: list[SheetCell], title: str, built: str) -> str:
 def export_approved(out_dir) -> list[Path]:
     """Write ``sheets/approved.csv`` and ``sheets/approved.json``: the approved shots for hand-over.
 
-    Each record: id, sku, colourway, finish, angle, path (relative to the output folder), width,
-    height (pixels), bytes, content_hash.  Sizes are read from the files themselves.
+    One record per file of every approved shot (the primary image first, then the other formats
+    and sizes the batch wrote): id, sku, colourway, finish, angle, primary (true for the image
+    the approval was given on), path (relative to the output folder), format, width, height
+    (pixels), bytes, sha256.  Sizes and hashes are read from the files themselves; a file the
+    manifest lists but the folder lacks is left out.
     """
+    import hashlib
+
     from PIL import Image
 
     out_dir = Path(out_dir)
     shots = _approvals.load_manifest(out_dir)
     records = []
     for c in collect_cells(out_dir, approved_only=True):
-        if c.image_path is None:
-            continue
-        with Image.open(c.image_path) as im:
-            w, h = im.size
-        records.append({
-            "id": c.id, "sku": c.sku, "colourway": c.colourway, "finish": c.finish,
-            "angle": c.angle, "path": Path(c.image).as_posix(), "width": w, "height": h,
-            "bytes": c.image_path.stat().st_size,
-            "content_hash": shots[c.id].get("content_hash"),
-        })
+        entry = shots[c.id]
+        paths = [c.image] + [i.get("path") for i in entry.get("images") or []]
+        seen = set()
+        for rel in paths:
+            if not rel or rel in seen:
+                continue
+            seen.add(rel)
+            f = out_dir / rel
+            if not f.is_file():
+                continue
+            data = f.read_bytes()
+            with Image.open(f) as im:
+                w, h = im.size
+                fmt = (im.format or f.suffix.lstrip(".")).lower()
+            records.append({
+                "id": c.id, "sku": c.sku, "colourway": c.colourway, "finish": c.finish,
+                "angle": c.angle, "primary": rel == c.image, "path": Path(rel).as_posix(),
+                "format": "jpg" if fmt == "jpeg" else fmt, "width": w, "height": h,
+                "bytes": len(data), "sha256": hashlib.sha256(data).hexdigest(),
+            })
     buf = io.StringIO()
     writer = csv.DictWriter(buf, fieldnames=EXPORT_FIELDS, lineterminator="\n")
     writer.writeheader()
@@ -428,7 +443,7 @@ def export_approved(out_dir) -> list[Path]:
     return [
         atomic_write(sheets / "approved.csv", buf.getvalue()),
         atomic_write(sheets / "approved.json",
-                     json.dumps({"format": 1, "shots": records}, indent=2, ensure_ascii=False) + "\n"),
+                     json.dumps({"format": 1, "files": records}, indent=2, ensure_ascii=False) + "\n"),
     ]
 
 

@@ -81,3 +81,25 @@ def test_missing_folder_and_bad_files_are_input_errors(tmp_path, batch):
 def test_no_temporary_files_left(batch):
     approvals.record_decision(batch, ["MUG-001-RED--front"], "approved", by="ana")
     assert not list(batch.glob(".vs-tmp-*"))
+
+
+def _approve_one(args):
+    out, sid = args
+    approvals.record_decision(out, [sid], "approved", by=f"reviewer-{sid}")
+    return sid
+
+
+def test_concurrent_reviewers_do_not_lose_decisions(tmp_path):
+    # 48 shots approved one by one from 4 processes at once; without the lock around
+    # read-modify-write about two thirds of the decisions were lost when this was written
+    import multiprocessing
+
+    batch = tmp_path / "out"
+    make_batch(batch, angles=[f"a{i}" for i in range(16)], size=40, qa=False)
+    ids = list(approvals.load_manifest(batch))
+    ctx = multiprocessing.get_context("spawn")
+    with ctx.Pool(4) as pool:
+        pool.map(_approve_one, [(str(batch), sid) for sid in ids])
+    stored = approvals.load_approvals(batch)
+    assert set(stored) == set(ids)
+    assert all(stored[sid]["by"] == f"reviewer-{sid}" for sid in ids)

@@ -85,20 +85,35 @@ def test_html_escapes_catalog_values_and_links_every_image(batch):
 
 
 def test_approved_only_and_export(batch):
+    import hashlib
+
+    # an extra, smaller JPEG of one approved shot, listed in the manifest as the batch lists sizes
+    small = batch / "shots/CUP-9--front@60.jpg"
+    with Image.open(batch / "shots/CUP-9--front.png") as im:
+        im.convert("RGB").resize((60, 60)).save(small, format="JPEG")
+    manifest = json.loads((batch / "manifest.json").read_text())
+    manifest["shots"]["CUP-9--front"]["images"].append(
+        {"path": "shots/CUP-9--front@60.jpg", "format": "jpg", "width": 60, "height": 60})
+    (batch / "manifest.json").write_text(json.dumps(manifest))
+
     paths = sheets.build_sheets(batch, approved_only=True, formats=("png", "html"))
     assert batch / "sheets/approved-sheet.png" in paths
     p = _Collect()
     p.feed((batch / "sheets/approved-sheet.html").read_text(encoding="utf-8"))
     assert len(p.imgs) == 3
     rows = list(csv.DictReader((batch / "sheets/approved.csv").open(encoding="utf-8")))
-    data = json.loads((batch / "sheets/approved.json").read_text(encoding="utf-8"))["shots"]
-    assert [r["id"] for r in rows] == [d["id"] for d in data] == [
-        "MUG-001-RED--front", "MUG-001-RED--three-quarter", "CUP-9--front"]
-    for r in data:  # sizes as the files and Pillow report them
+    data = json.loads((batch / "sheets/approved.json").read_text(encoding="utf-8"))["files"]
+    assert [r["path"] for r in rows] == [d["path"] for d in data] == [
+        "shots/MUG-001-RED--front.png", "shots/MUG-001-RED--three-quarter.png",
+        "shots/CUP-9--front.png", "shots/CUP-9--front@60.jpg"]
+    assert [d["primary"] for d in data] == [True, True, True, False]
+    for r in data:  # sizes and hashes as the files, Pillow and hashlib report them
         f = batch / r["path"]
         assert r["bytes"] == f.stat().st_size
+        assert r["sha256"] == hashlib.sha256(f.read_bytes()).hexdigest()
         with Image.open(f) as im:
             assert (r["width"], r["height"]) == im.size
+    assert data[3]["format"] == "jpg" and data[3]["width"] == 60
     assert rows[2]["colourway"] == f"Ink {SCRIPT}"
 
 
