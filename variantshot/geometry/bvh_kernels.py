@@ -104,13 +104,8 @@ else:
 
         return sig, codegen
 
-    @njit(**INLINE)
-    def _stack_refs():
-        return numba.carray(_alloca_i32_stack(), STACK)
-
-    @njit(**INLINE)
-    def _stack_dists():
-        return numba.carray(_alloca_f32_stack(), STACK)
+    _stack_refs = _alloca_i32_stack
+    _stack_dists = _alloca_f32_stack
 
 
 # --------------------------------------------------------------------------------------------
@@ -247,18 +242,27 @@ if numba.config.DISABLE_JIT:
     def _set(arr, index, value):
         arr[index] = value
 
+    def _data_ptr(arr):
+        return arr
+
 else:
+
+    def _base_pointer(context, builder, typ, value):
+        """Data pointer of a C-contiguous array argument, or the pointer argument itself."""
+        if isinstance(typ, types.CPointer):
+            return value
+        return context.make_array(typ)(context, builder, value).data
 
     @intrinsic
     def _get(typingctx, arr, index):
-        """``arr[index]`` for a known non-negative index: numba's negative-index wrap-around
-        costs an add and a select per access, and these accesses are the hot loop."""
+        """``arr[index]`` (array or data pointer) for a known non-negative index: numba's
+        negative-index wrap-around costs an add and a select per access in the hot loop."""
         sig = arr.dtype(arr, index)
 
         def codegen(context, builder, signature, args):
-            a = context.make_array(signature.args[0])(context, builder, args[0])
+            base = _base_pointer(context, builder, signature.args[0], args[0])
             idx = context.cast(builder, args[1], signature.args[1], types.int64)
-            return builder.load(builder.gep(a.data, [idx]))
+            return builder.load(builder.gep(base, [idx]))
 
         return sig, codegen
 
@@ -268,11 +272,25 @@ else:
         sig = types.none(arr, index, value)
 
         def codegen(context, builder, signature, args):
-            a = context.make_array(signature.args[0])(context, builder, args[0])
+            base = _base_pointer(context, builder, signature.args[0], args[0])
             idx = context.cast(builder, args[1], signature.args[1], types.int64)
             val = context.cast(builder, args[2], signature.args[2], signature.args[0].dtype)
-            builder.store(val, builder.gep(a.data, [idx]))
+            builder.store(val, builder.gep(base, [idx]))
             return context.get_dummy_value()
+
+        return sig, codegen
+
+    @intrinsic
+    def _data_ptr(typingctx, arr):
+        """The data pointer of a C-contiguous array (no reference counting downstream)."""
+        if not isinstance(arr, types.Array) or arr.layout != "C":
+            raise numba.core.errors.TypingError(
+                f"BVH arrays must be C-contiguous numpy arrays, got {arr}"
+            )
+        sig = types.CPointer(arr.dtype)(arr)
+
+        def codegen(context, builder, signature, args):
+            return context.make_array(signature.args[0])(context, builder, args[0]).data
 
         return sig, codegen
 
@@ -303,7 +321,7 @@ else:
             i32 = ir.IntType(32)
             i64 = ir.IntType(64)
             vty = ir.VectorType(ir.FloatType(), WIDTH)
-            arr = context.make_array(signature.args[0])(context, builder, args[0])
+            data = _base_pointer(context, builder, signature.args[0], args[0])
             ints = [context.cast(builder, args[k], signature.args[k], types.int64) for k in range(1, 5)]
             flts = [context.cast(builder, args[k], signature.args[k], types.float32) for k in range(5, 13)]
             r_ref, r_nx, r_ny, r_nz = ints
@@ -316,7 +334,7 @@ else:
                 return builder.shuffle_vector(v, ir.Constant(vty, None), zeros)
 
             def load(offset):
-                ptr = builder.gep(arr.data, [builder.add(base, offset)])
+                ptr = builder.gep(data, [builder.add(base, offset)])
                 return builder.load(builder.bitcast(ptr, vty.as_pointer()), align=4)
 
             def slab(offset, o, iv):
@@ -387,10 +405,33 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
 
     Notes
     -----
-    No heap allocation: the traversal stack lives on the machine stack.  Safe to call from
+    Inlined into the caller (numba IR), where it passes the arrays' data pointers to the
+    traversal, which is compiled once (``_closest_core``): an array argument to a called numba
+    function costs atomic reference counting on every call.  No heap allocation: the
+    traversal stack lives on the machine stack.  Safe to call from
     any thread.  Children are visited nearest first and the far limit shrinks with each hit;
     stacked subtrees whose entry distance lies beyond the closest hit are skipped.
     """
+    return _closest_core(_data_ptr(nodes_f), _data_ptr(nodes_i), _data_ptr(tris_f), _data_ptr(tri_ids),
+                         np.float32(ox), np.float32(oy), np.float32(oz),
+                         np.float32(dx), np.float32(dy), np.float32(dz), np.float32(tmin), np.float32(tmax))
+
+
+@njit(**INLINE)
+def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
+    """True when the ray hits any triangle with tmin < t < tmax (shadow query, early exit).
+
+    Parameters are those of :func:`closest_hit`.  No heap allocation; thread safe.  Inlined into
+    the caller; the traversal itself is compiled once (``_any_core``).
+    """
+    return _any_core(_data_ptr(nodes_f), _data_ptr(nodes_i), _data_ptr(tris_f), _data_ptr(tri_ids),
+                     np.float32(ox), np.float32(oy), np.float32(oz),
+                     np.float32(dx), np.float32(dy), np.float32(dz), np.float32(tmin), np.float32(tmax))
+
+
+@njit(**KERNEL)
+def _closest_core(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
+    """:func:`closest_hit` on data pointers (compiled once, called per ray)."""
     ox = np.float32(ox)
     oy = np.float32(oy)
     oz = np.float32(oz)
@@ -470,12 +511,9 @@ def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin,
     return t_best, tri_best, b1_best, b2_best
 
 
-@njit(**INLINE)
-def any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
-    """True when the ray hits any triangle with tmin < t < tmax (shadow query, early exit).
-
-    Parameters are those of :func:`closest_hit`.  No heap allocation; thread safe.
-    """
+@njit(**KERNEL)
+def _any_core(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
+    """:func:`any_hit` on data pointers (compiled once, called per ray)."""
     ox = np.float32(ox)
     oy = np.float32(oy)
     oz = np.float32(oz)
@@ -632,8 +670,8 @@ def build_binary(tri_lo, tri_hi, centroid, max_leaf, n_bins, trav_cost):
     Notes
     -----
     O(T log T): each level does three linear passes.  All-equal centroids and very deep
-    branches (depth > 48) fall back to median splits, so the depth stays below 48 + 32 and no
-    input loops forever.
+    branches (depth >= 48) fall back to halving the range, so the depth stays below 48 + 32
+    and no input loops forever.
     """
     n_tris = tri_lo.shape[0]
     cap = max(1, 2 * n_tris - 1)
@@ -651,7 +689,6 @@ def build_binary(tri_lo, tri_hi, centroid, max_leaf, n_bins, trav_cost):
     bin_n = np.empty((3, n_bins), np.int64)
     right_area = np.empty(n_bins, np.float64)
     right_n = np.empty(n_bins, np.int64)
-    keys = np.empty(n_tris, np.float32)
 
     st_node = np.empty(256, np.int64)
     st_start = np.empty(256, np.int64)
@@ -809,18 +846,7 @@ def build_binary(tri_lo, tri_hi, centroid, max_leaf, n_bins, trav_cost):
                     j -= 1
             mid = i
         else:
-            # all centroids equal, or too deep: median split along the widest centroid axis
-            a = 0
-            if cy1 - cy0 > cx1 - cx0:
-                a = 1
-            if cz1 - cz0 > max(cx1 - cx0, cy1 - cy0):
-                a = 2
-            for k in range(s, e):
-                keys[k] = centroid[order[k], a]
-            perm = np.argsort(keys[s:e], kind="mergesort")
-            seg = order[s:e].copy()
-            for k in range(n):
-                order[s + k] = seg[perm[k]]
+            # all centroids equal, or too deep: split the range in half (always progresses)
             mid = s + n // 2
         if mid <= s or mid >= e:
             mid = s + n // 2
