@@ -9,6 +9,8 @@ import typer
 
 from . import _console
 
+IMAGE_SUFFIXES = (".png", ".jpg", ".jpeg", ".webp", ".pfm", ".npy")
+
 
 def _parse_env(value: str | None):
     """``--env``: a number (uniform grey), three comma-separated numbers, or an image path."""
@@ -67,6 +69,9 @@ def trace(
     with _console.guarded():
         if tone not in ("none", "neutral"):
             raise InputError(f"--tone {tone!r} is not a tone curve", accepted="none, neutral")
+        if output.suffix.lower() not in IMAGE_SUFFIXES:
+            raise InputError(f"cannot tell the image format from suffix {output.suffix!r}", file=output,
+                             accepted=", ".join(IMAGE_SUFFIXES))
         if bit_depth not in (8, 16):
             raise InputError(f"--bit-depth {bit_depth} is not accepted", accepted="8, 16")
         from ..geometry.gltf import load_gltf
