@@ -257,7 +257,7 @@ def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int =
     Camera rays through the centres of ``step`` x ``step`` pixel blocks find the sweep behind
     every pixel (the product left out); :func:`~variantshot.geometry.rig.direct_light_ratio`
     gives the share of the rig's direct light the product lets through there; the ratio is
-    upsampled bilinearly to the image, blurred over one block to hide the jitter, and snapped
+    upsampled bilinearly to the image, blurred over 3 x 3 pixels to hide the jitter, and snapped
     with the rig's ``white_boost_ev`` (:func:`~variantshot.imaging.background.snap_shadow`).  Pixels that see a soft box or the
     environment are unshadowed.
     """
@@ -295,7 +295,7 @@ def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int =
         full = np.asarray(im, np.float64)
     else:
         full = low
-    full = box_blur(full, max(1, step))
+    full = box_blur(full, 1)
     return snap_shadow(full, rig.spec.white_boost_ev)
 
 
@@ -347,7 +347,8 @@ def _render_shot(task: ShotTask) -> ShotResult:
     if bg in ("white", "transparent"):
         cov_settings = dataclasses.replace(settings, spp=min(settings.spp, 16), max_depth=1)
         coverage = render(product, cov_settings, env=None, camera=camera, bvh=product_bvh).alpha
-        shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, seed=task.quality.seed)
+        step = 2 if max(settings.width, settings.height) >= 256 else 1
+        shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, step=step, seed=task.quality.seed)
     else:
         coverage, shadow = None, None
     t_render = time.perf_counter()

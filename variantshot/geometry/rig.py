@@ -157,7 +157,7 @@ class RigSpec:
     rotation_deg: float = 0.0
     key_illuminance: float = math.pi
     environment_linear: tuple[float, float, float] = (0.05, 0.05, 0.05)
-    white_boost_ev: float = 1.0
+    white_boost_ev: float = 0.75
     boxes: tuple[SoftBox, ...] = ()
     backdrop: Backdrop = field(default_factory=Backdrop)
     source: str = "<memory>"
@@ -370,7 +370,7 @@ def parse_rig(data: dict, *, source: str = "<memory>", default_name: str = "rig"
             rotation_deg=_num(data, "rotation_deg", where, 0.0),
             key_illuminance=_num(data, "key_illuminance", where, math.pi, positive=True),
             environment_linear=_rgb(data, "environment", where, (0.05, 0.05, 0.05)),
-            white_boost_ev=_num(data, "white_boost_ev", where, 1.0),
+            white_boost_ev=_num(data, "white_boost_ev", where, 0.75),
             boxes=tuple(boxes),
             backdrop=backdrop,
             source=source,
@@ -552,6 +552,26 @@ def _box_corners(centre: np.ndarray, normal: np.ndarray, width: float, height: f
     )
 
 
+def _quad_blocks(corners: np.ndarray, eye: np.ndarray, targets: np.ndarray) -> bool:
+    """Whether any segment eye -> target crosses the rectangle ``corners`` (4, 3)."""
+    o = corners[0]
+    e1, e2 = corners[1] - o, corners[3] - o
+    nrm = np.cross(e1, e2)
+    for t in targets:
+        d = t - eye
+        denom = float(d @ nrm)
+        if abs(denom) < 1e-15:
+            continue
+        s = float((o - eye) @ nrm) / denom
+        if not 0.0 < s < 1.0:
+            continue
+        q = eye + s * d - o
+        u, v = float(q @ e1) / float(e1 @ e1), float(q @ e2) / float(e2 @ e2)
+        if 0.0 <= u <= 1.0 and 0.0 <= v <= 1.0:
+            return True
+    return False
+
+
 def build_rig(
     spec: RigSpec | str,
     bounds,
@@ -569,7 +589,9 @@ def build_rig(
     bounds : ((3,), (3,)) float arrays
         The product's world-space bounding box ``(lo, hi)`` (``Scene.bounds()``).
     camera : Camera, optional
-        The shot's camera: the rig turns so that its +Z faces it.
+        The shot's camera: the rig turns so that its +Z faces it, and a soft box other than
+        the key that would stand between the lens and the product (an overhead box seen from a
+        top view) is left out of that shot.
     key_to_fill, rotation_deg : float, optional
         Override the rig file's ratio and rotation (batch settings).
 
@@ -599,7 +621,17 @@ def build_rig(
         corners = _box_corners(c, -d, b.width * R, b.height * R)
         placed[b.name] = corners
         unit[b.name] = polygon_irradiance(corners, 1.0, centre, d)
+    eye = None if camera is None else np.asarray(camera.world_from_camera, np.float64)[:3, 3]
+    blocked = set()
+    if eye is not None:
+        corners8 = np.array([[x, y, z] for x in (lo[0], hi[0]) for y in (lo[1], hi[1]) for z in (lo[2], hi[2])])
+        targets = np.vstack([corners8, centre[None]])
+        for b in spec.boxes:
+            if b.role != "key" and _quad_blocks(placed[b.name], eye, targets):
+                blocked.add(b.name)
     for b in spec.boxes:
+        if b.name in blocked:
+            continue  # it would stand between the lens and the product (a top view, say)
         if b.role == "key":
             target = spec.key_illuminance
         elif b.role == "fill":

@@ -6,7 +6,7 @@ A shot on a ``white`` or ``transparent`` background keeps the product's shadow b
 studio floor.  The shadow is the ratio of what the floor receives with the product over what it
 receives without it, ``ratio`` in [0, 1] per pixel (computed by the batch from the rig's lights:
 :func:`variantshot.geometry.rig.direct_light_ratio`).  As on a real white sweep, the background
-is lit ``boost_ev`` stops above paper white (1 stop by default, the rig's ``white_boost_ev``;
+is lit ``boost_ev`` stops above paper white (0.75 stop by default, the rig's ``white_boost_ev``;
 photographers over-light a white sweep by 1-2 stops so that it burns out to pure white and only
 the contact shadow stays, common practice, no source):
 
@@ -40,7 +40,7 @@ __all__ = [
     "composite",
 ]
 
-DEFAULT_BOOST_EV = 1.0
+DEFAULT_BOOST_EV = 0.75
 
 
 def box_blur(image: np.ndarray, radius: int) -> np.ndarray:

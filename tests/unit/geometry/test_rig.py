@@ -188,3 +188,19 @@ def test_bad_rig_files_name_the_problem(tmp_path):
         load_rig(bad)
     with pytest.raises(InputError, match="key-to-fill"):
         build_rig("soft-even", BOUNDS, key_to_fill=0.0)
+
+
+def test_box_between_lens_and_product_is_left_out():
+    # a top view: camera straight above, looking down -Y (its up vector is -Z)
+    m = np.eye(4)
+    m[:3, :3] = [[1, 0, 0], [0, 0, 1], [0, -1, 0]]  # columns: right +X, up -Z, backward +Y
+    m[:3, 3] = (0.0, 3.0, 0.0)
+    top = Camera(name="top", kind="perspective", world_from_camera=m, yfov_rad=0.35)
+    full = build_rig("soft-even", BOUNDS)
+    seen = build_rig("soft-even", BOUNDS, camera=top)
+    assert "overhead" in full.box_corners and "overhead" not in seen.box_corners
+    assert "key" in seen.box_corners and "fill" in seen.box_corners
+    # nothing that is left is crossed by the line of sight to the product's centre
+    for corners in seen.box_corners.values():
+        assert not rigmod._quad_blocks(corners, m[:3, 3], seen.centre[None])
+    assert rigmod._quad_blocks(full.box_corners["overhead"], m[:3, 3], full.centre[None])
