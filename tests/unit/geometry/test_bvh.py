@@ -100,6 +100,35 @@ def test_random_soup_many_rays():
     assert np.isfinite(hits.t).sum() > 100  # the check exercised real hits
 
 
+def test_single_triangle_closed_form():
+    # The point 0.2 v0 + 0.3 v1 + 0.5 v2 of a triangle, reached from 2 units above it: t is in
+    # units of the direction's length, b1 / b2 weight v1 / v2 (BRIEF contract; affine
+    # combination of the vertices, closed form).
+    v = np.array([[0.0, 0.0, 0.0], [2.0, 0.0, 0.0], [0.0, 1.0, 0.0]], np.float32)
+    b = build_bvh(v, np.array([[0, 1, 2]], np.int32))
+    p = 0.2 * v[0] + 0.3 * v[1] + 0.5 * v[2]
+    for length in (1.0, 4.0, 0.25):
+        o = (p + [0.0, 0.0, 2.0]).astype(np.float32)[None]
+        d = np.array([[0.0, 0.0, -length]], np.float32)
+        h = intersect(b, o, d)
+        assert h.tri[0] == 0
+        assert h.t[0] == pytest.approx(2.0 / length, rel=1e-6)
+        assert h.b1[0] == pytest.approx(0.3, abs=1e-6) and h.b2[0] == pytest.approx(0.5, abs=1e-6)
+        # from below: both faces count
+        h = intersect(b, (p - [0.0, 0.0, 2.0]).astype(np.float32)[None], -d)
+        assert h.tri[0] == 0 and h.t[0] == pytest.approx(2.0 / length, rel=1e-6)
+        # the open interval (tmin, tmax) decides, for closest and any hit alike
+        t_hit = 2.0 / length
+        for tmin, tmax, expect in ((0.0, 0.99 * t_hit, False), (0.0, 1.01 * t_hit, True),
+                                   (1.01 * t_hit, np.inf, False), (0.99 * t_hit, np.inf, True)):
+            assert bool(occluded(b, o, d, tmin, tmax)[0]) is expect
+            assert bool(intersect(b, o, d, tmin, tmax).tri[0] == 0) is expect
+    # per-ray tmax arrays broadcast like scalars
+    o = np.repeat((p + [0.0, 0.0, 2.0]).astype(np.float32)[None], 2, axis=0)
+    d = np.repeat(np.array([[0.0, 0.0, -1.0]], np.float32), 2, axis=0)
+    np.testing.assert_array_equal(occluded(b, o, d, 0.0, np.array([1.0, 3.0])), [False, True])
+
+
 def test_no_triangles_always_misses():
     b = build_bvh(np.zeros((0, 3), np.float32), np.zeros((0, 3), np.int32))
     o = np.zeros((5, 3), np.float32)
@@ -246,7 +275,8 @@ def test_against_embreex_and_trimesh():
     rel = np.abs(h.t[both] - ref["tfar"][both]) / ref["tfar"][both]
     assert np.mean(rel <= 1e-4) >= 0.9999
 
-    # trimesh's ray module (its embreex backend when installed) names the same first triangles
+    # trimesh's ray module names the same first triangles (its backend is embreex when that is
+    # installed, as in the test extra: trimesh.ray.ray_pyembree; else its numpy ray_triangle)
     first = mesh.ray.intersects_first(o[:20000], d[:20000])
     same = (first == h.tri[:20000]) | (
         (first >= 0) & (h.tri[:20000] >= 0) & np.isclose(h.t[:20000], ref["tfar"][:20000], rtol=1e-4)
