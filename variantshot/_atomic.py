@@ -13,6 +13,13 @@ from pathlib import Path
 TEMP_PREFIX = ".vs-tmp-"
 
 
+def _default_mode() -> int:
+    # mkstemp creates 0600 files; output is meant to be shared like any other file the user makes.
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 def atomic_write(path, data: bytes | str, *, encoding: str = "utf-8") -> Path:
     """Write ``data`` to ``path`` atomically and return the path.
 
@@ -32,6 +39,7 @@ def atomic_write(path, data: bytes | str, *, encoding: str = "utf-8") -> Path:
             f.write(payload)
             f.flush()
             os.fsync(f.fileno())
+        os.chmod(tmp, _default_mode())
         os.replace(tmp, path)
     except BaseException:
         try:
