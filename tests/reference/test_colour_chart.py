@@ -109,3 +109,13 @@ def test_chart_in_the_soft_even_studio_rig(chart, denoise):
     size = dict(size_px=64, spp=16) if denoise else {}
     results = [swatch.rig_swatch(c, "soft-even", ev, denoise=denoise, **size) for c in rgb]
     _check(names, lab_ref, results)
+
+
+def test_mid_grey_catalog_colour_through_the_batch_hook():
+    # lab(50, 0, 0) is middle grey, Y = 18.42 %, sRGB (119, 119, 119) (REFERENCES §4); rendered in
+    # the rig at the batch's own calibrated exposure it must come back within the ΔE <= 1
+    runner = pytest.importorskip("variantshot.batch.runner")
+    ev = runner.calibrate_exposure("soft-even")
+    code = swatch.swatch_srgb8_for_lab((50.0, 0.0, 0.0), "soft-even", ev)
+    assert qa.swatch_delta_e(code, (50.0, 0.0, 0.0)) <= 1.0
+    assert np.allclose(code, 119, atol=3)

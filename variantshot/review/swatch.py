@@ -35,6 +35,7 @@ __all__ = [
     "calibrate_exposure_ev",
     "rig_swatch",
     "calibrate_rig_exposure_ev",
+    "swatch_srgb8_for_lab",
     "CALIBRATION_GREY",
 ]
 
@@ -321,3 +322,21 @@ def calibrate_rig_exposure_ev(rig, *, spp: int = 256, size_px: int = 16, seed: i
     if not (y > 0.0 and math.isfinite(y)):
         raise ValueError("calibrate_rig_exposure_ev: the calibration card receives no light in this rig")
     return math.log2(grey / y)
+
+
+def swatch_srgb8_for_lab(colour_lab_d65, rig, exposure_ev: float, *, denoise: bool = False,
+                         seed: int = 0, threads: int | None = None) -> np.ndarray:
+    """The rendered swatch colour (8-bit code, ``(3,) float64``) of a catalog colour in a rig.
+
+    What the batch passes to :func:`variantshot.review.qa.run_qa` as ``swatch_srgb8``: the
+    catalog colour (CIELAB, D65) is converted to linear sRGB (clipped to the gamut, as the
+    template's ``baseColorFactor`` must be) and rendered with :func:`rig_swatch`.  With the
+    denoiser the swatch is 64 x 64 px at 16 spp (on a 16 px image the denoiser itself shifts
+    colours by up to ~3 ΔE2000), without it 16 x 16 px at 64 spp.
+    """
+    from ..imaging.colour import linear_srgb_from_lab
+
+    rgb = np.clip(linear_srgb_from_lab(np.asarray(colour_lab_d65, dtype=np.float64).reshape(3)), 0.0, 1.0)
+    size = dict(size_px=64, spp=16) if denoise else dict(size_px=16, spp=64)
+    return rig_swatch(rgb, rig, exposure_ev, denoise=denoise, seed=seed, threads=threads,
+                      **size).srgb8
