@@ -103,9 +103,8 @@ def test_chart_in_the_soft_even_studio_rig(chart, denoise):
             pytest.skip("the denoiser (pyoidn) is not available on this platform")
     names, lab_ref, rgb, _ = chart
     ev = swatch.calibrate_rig_exposure_ev("soft-even")  # 16 x 16 px at 256 spp
-    # raw: 16 x 16 px at 64 spp.  Denoised: 64 x 64 px at 16 spp (the draft preset's spp): the
-    # denoiser needs some image to work on; on a 16 x 16 swatch it shifts colours by up to ~3 ΔE
-    # (seen here), which is a property of tiny images, not of shots.
+    # raw: 16 x 16 px at 64 spp.  Denoised: 64 x 64 px at 16 spp (the draft preset's spp), so
+    # the denoiser sees a neighbourhood and noise like a draft shot's.
     size = dict(size_px=64, spp=16) if denoise else {}
     results = [swatch.rig_swatch(c, "soft-even", ev, denoise=denoise, **size) for c in rgb]
     _check(names, lab_ref, results)

@@ -331,8 +331,9 @@ def swatch_srgb8_for_lab(colour_lab_d65, rig, exposure_ev: float, *, denoise: bo
     What the batch passes to :func:`variantshot.review.qa.run_qa` as ``swatch_srgb8``: the
     catalog colour (CIELAB, D65) is converted to linear sRGB (clipped to the gamut, as the
     template's ``baseColorFactor`` must be) and rendered with :func:`rig_swatch`.  With the
-    denoiser the swatch is 64 x 64 px at 16 spp (on a 16 px image the denoiser itself shifts
-    colours by up to ~3 ΔE2000), without it 16 x 16 px at 64 spp.
+    denoiser the swatch is 64 x 64 px at 16 spp, so the denoiser sees a neighbourhood and a
+    noise level like a draft shot's (an earlier denoiser shifted colours by up to 3 ΔE2000 on
+    16 px swatches); without it 16 x 16 px at 64 spp.
     """
     from ..imaging.colour import linear_srgb_from_lab
 
