@@ -97,7 +97,10 @@ _state: dict = {"pid": None, "devices": {}, "unavailable": None, "warned": False
 
 
 def _forget_devices() -> None:
-    """Drop (without releasing) every cached device: used in a forked child."""
+    """Drop (without releasing) every cached device and renew the lock: used in a forked child
+    (the lock may have been held by a parent thread that does not exist in the child)."""
+    global _lock
+    _lock = threading.Lock()
     _state["pid"] = os.getpid()
     _state["devices"] = {}
     _state["unavailable"] = None

@@ -329,6 +329,16 @@ def test_devices_are_cached_per_thread_count():
     assert set(dn._state["devices"]) >= {1, 2}
 
 
+def test_thread_count_does_not_change_the_image():
+    """Same bits on 1, 2 and 3 threads (DESIGN.md: an image does not depend on the thread count)."""
+    rng = np.random.default_rng(4)
+    clean, albedo, normal = _edge_image(96)
+    noisy = _noisy(rng, clean, 0.5)
+    outs = [dn.denoise(noisy, albedo=albedo, normal=normal, threads=t) for t in (1, 2, 3)]
+    np.testing.assert_array_equal(outs[0], outs[1])
+    np.testing.assert_array_equal(outs[0], outs[2])
+
+
 def _child_denoise(queue):
     img = np.random.default_rng(9).random((32, 32, 3))
     queue.put((len(dn._state["devices"]), dn.denoise(img, threads=1)))
