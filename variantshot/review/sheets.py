@@ -321,7 +321,8 @@ def _draw_page(title: str, subtitle: str, angles: list[str], rows, page_label: s
     page = Image.new("RGB", (width, height), _PAPER)
     draw = ImageDraw.Draw(page)
     tw = width - 2 * MARGIN
-    draw.text((MARGIN, MARGIN), _ellipsis(title, _font(22, True), tw), font=_font(22, True), fill=_INK)
+    title_w = tw - (int(_font(13).getlength(page_label)) + 16 if page_label else 0)  # room for "page i of n"
+    draw.text((MARGIN, MARGIN), _ellipsis(title, _font(22, True), title_w), font=_font(22, True), fill=_INK)
     y = MARGIN + 32
     for line in _wrap(subtitle, _font(13), tw, 2):
         draw.text((MARGIN, y), line, font=_font(13), fill=_MUTED)
