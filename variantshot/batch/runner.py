@@ -345,7 +345,7 @@ def _render_shot(task: ShotTask) -> ShotResult:
     product_bvh = build_bvh(product.positions, product.triangles)
     film = render(shot_scene, settings, env=env, camera=camera)
     if bg in ("white", "transparent"):
-        cov_settings = dataclasses.replace(settings, spp=min(settings.spp, 16), max_depth=1)
+        cov_settings = dataclasses.replace(settings, spp=max(8, min(settings.spp // 4, 32)), max_depth=1)
         coverage = render(product, cov_settings, env=None, camera=camera, bvh=product_bvh).alpha
         step = 2 if max(settings.width, settings.height) >= 256 else 1
         shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, step=step, seed=task.quality.seed)

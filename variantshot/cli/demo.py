@@ -13,10 +13,12 @@ def demo_catalog() -> tuple[Path, Path]:
     """``(catalog CSV, templates folder)`` of the bundled demo.
 
     Looked up next to the package first (a repository checkout: ``<repo>/catalog/demo.csv`` and
-    ``<repo>/templates``), then inside it (``variantshot/_data/``, where a wheel carries them).
+    ``<repo>/templates``), then where a wheel installs them (``<prefix>/share/variantshot``).
     """
+    import sys
+
     package = Path(__file__).resolve().parent.parent
-    for root in (package.parent, package / "_data"):
+    for root in (package.parent, Path(sys.prefix) / "share" / "variantshot"):
         csv, templates = root / "catalog" / "demo.csv", root / "templates"
         if csv.is_file() and templates.is_dir():
             return csv, templates

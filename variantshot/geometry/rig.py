@@ -82,10 +82,12 @@ ROLES = ("key", "fill", "rim", "top", "accent")
 
 
 def _find_rig_dirs() -> list[Path]:
-    """Where named rigs live: the repo's ``templates/rigs`` next to the package, or the copy
-    installed inside the package (``variantshot/_data/templates/rigs``)."""
+    """Where named rigs live: the repo's ``templates/rigs`` next to the package, or the copy a
+    wheel installs (``<prefix>/share/variantshot/templates/rigs``)."""
+    import sys
+
     here = Path(__file__).resolve().parent.parent  # variantshot/
-    candidates = [here.parent / "templates" / "rigs", here / "_data" / "templates" / "rigs"]
+    candidates = [here.parent / "templates" / "rigs", Path(sys.prefix) / "share" / "variantshot" / "templates" / "rigs"]
     return [c for c in candidates if c.is_dir()]
 
 
