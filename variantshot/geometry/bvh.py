@@ -9,6 +9,7 @@ whose docstring documents the array layout.  Path-tracing kernels call
 from __future__ import annotations
 
 import time
+from contextlib import contextmanager
 from typing import NamedTuple
 
 import numpy as np
@@ -140,6 +141,21 @@ def build_bvh(positions, triangles) -> BVH:
                time.perf_counter() - t_start)
 
 
+@contextmanager
+def _dynamic_blocks(blocks_per_grab: int = 4):
+    """Hand parallel ray blocks out dynamically: one ray may cost 100x another (sky vs. mesh).
+
+    (Set from Python: numba cannot cache a kernel that sets its own chunk size.)
+    """
+    import numba
+
+    old = numba.set_parallel_chunksize(blocks_per_grab)
+    try:
+        yield
+    finally:
+        numba.set_parallel_chunksize(old)
+
+
 def _rays(origins, directions, tmin, tmax):
     o = _float_array("origins", origins, (3,))
     d = _float_array("directions", directions, (3,))
@@ -175,8 +191,9 @@ def intersect(bvh: BVH, origins, directions, tmin=0.0, tmax=np.inf) -> Hits:
     tri = np.empty(n, np.int32)
     b1 = np.empty(n, np.float32)
     b2 = np.empty(n, np.float32)
-    bk.intersect_closest(bvh.nodes_f, bvh.nodes_i, bvh.tris_f, bvh.tri_ids, o, d, lo, hi,
-                         t, tri, b1, b2)
+    with _dynamic_blocks():
+        bk.intersect_closest(bvh.nodes_f, bvh.nodes_i, bvh.tris_f, bvh.tri_ids, o, d, lo, hi,
+                             t, tri, b1, b2)
     return Hits(t, tri, b1, b2)
 
 
@@ -193,5 +210,6 @@ def occluded(bvh: BVH, origins, directions, tmin=0.0, tmax=np.inf) -> np.ndarray
 
     o, d, lo, hi = _rays(origins, directions, tmin, tmax)
     out = np.empty(o.shape[0], np.bool_)
-    bk.intersect_any(bvh.nodes_f, bvh.nodes_i, bvh.tris_f, bvh.tri_ids, o, d, lo, hi, out)
+    with _dynamic_blocks():
+        bk.intersect_any(bvh.nodes_f, bvh.nodes_i, bvh.tris_f, bvh.tri_ids, o, d, lo, hi, out)
     return out

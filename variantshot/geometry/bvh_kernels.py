@@ -585,7 +585,8 @@ def intersect_closest(nodes_f, nodes_i, tris_f, tri_ids, origins, directions, tm
     out_tri : (N,) int32 ndarray, written (original triangle index, -1 on a miss)
     out_b1, out_b2 : (N,) float32 ndarray, written (barycentrics of vertices 1 and 2)
 
-    Thread contract: block k writes only rays 64 k .. 64 k + 63 of the outputs.
+    Thread contract: block k writes only rays 64 k .. 64 k + 63 of the outputs.  The caller
+    (``bvh.intersect``) sets numba's parallel chunk size so blocks are handed out dynamically.
     """
     n = origins.shape[0]
     n_blocks = (n + 63) // 64
