@@ -41,17 +41,19 @@ functions are exact in sign with or without fma.
 Ray-box test: slabs with the conservative far-distance factor 1 + 2 gamma(3) of Ize (2013),
 "Robust BVH Ray Traversal", JCGT 2(2), as used by pbrt-v4 ``Bounds3::IntersectP``; evaluated
 for all 8 children at once as LLVM vector code (an ``@intrinsic``, since numba runs no SLP
-vectorizer).  ``closest_hit`` and ``any_hit`` are inlined at numba-IR level into their callers
-(``inline="always"``): called as functions, numba reference-counts the four array arguments
-on every call, which costs as much as a short traversal and serialises threads on the counts.
+vectorizer).
+
+Calling convention: ``closest_hit`` and ``any_hit`` are thin wrappers inlined at numba-IR level
+into their callers (``inline="always"``).  They pass the arrays' data pointers to the traversal
+(``_closest_core`` / ``_any_core``), which is compiled once and cached.  Passing the arrays
+themselves to a called numba function costs atomic reference counting of all four on every
+call, as much as a short traversal, and the threads then contend for the same counters.
 """
 
 from __future__ import annotations
 
 from .. import _jit  # noqa: F401  (sets the numba cache folder before numba is imported)
-from .._jit import KERNEL as _KERNEL_PRESET
-from .._jit import PARALLEL as _PARALLEL_PRESET
-from .._jit import njit, prange
+from .._jit import KERNEL, PARALLEL, njit, prange
 
 import math
 
@@ -66,9 +68,6 @@ from numba.extending import intrinsic
 WIDTH = 8
 STACK = 640
 
-# numba accepts fastmath as a bool, dict or *set* (not frozenset), so pass a set copy.
-KERNEL = dict(_KERNEL_PRESET, fastmath=set(_KERNEL_PRESET["fastmath"]))
-PARALLEL = dict(_PARALLEL_PRESET, fastmath=set(_PARALLEL_PRESET["fastmath"]))
 # Small helpers are inlined at numba-IR level: LLVM does not inline across numba functions,
 # and a call per node or triangle (with reference counting of the array arguments) costs more
 # than the work it does.
