@@ -18,7 +18,8 @@ One shot, step by step
    shadow it casts on the sweep (:func:`shadow_map`, ray cast from the rig's lights);
 4. composite the background (:mod:`variantshot.imaging.background`) with the rig's calibrated
    exposure (:func:`calibrate_exposure`), encode every format and size;
-5. run QA on the primary image (``review.qa.run_qa``).
+5. run QA on the primary image (``review.qa.run_qa``), with the variant colour's swatch rendered
+   in the same rig at the same exposure (``review.swatch``) for the colour check.
 """
 
 from __future__ import annotations
@@ -162,8 +163,11 @@ def _calibrate_cached(digest: str, spec: RigSpec) -> float:
         [[-0.5, 0.0, 0.0], [0.5, 0.0, 0.0], [0.5, 1.0, 0.0], [-0.5, 1.0, 0.0]],
         [[0, 1, 2], [0, 2, 3]],
         normals=[[0.0, 0.0, 1.0]] * 4,
+        # ior 1.0: f0 = 0, no specular lobe picking up the soft boxes (glTF Appendix B,
+        # KHR_materials_ior); the same card as review.swatch, so swatches and shots agree
         materials=[Material(name="grey card 18%", base_colour_factor=(MID_GREY, MID_GREY, MID_GREY, 1.0),
-                            metallic_factor=0.0, roughness_factor=1.0)],
+                            metallic_factor=0.0, roughness_factor=1.0,
+                            extensions={"KHR_materials_ior": {"ior": 1.0}})],
         source="calibration card",
     )
     m = np.eye(4)
@@ -354,7 +358,7 @@ def _render_shot(task: ShotTask) -> ShotResult:
     t_render = time.perf_counter()
     radiance = film.radiance
     if task.quality.denoise:
-        radiance = _maybe_denoise(film)
+        radiance = _maybe_denoise(film, task.threads)
     gain = 2.0 ** task.exposure_ev
     rgb, alpha = composite(bg, radiance, coverage if coverage is not None else film.alpha, gain, shadow)
 
@@ -382,14 +386,15 @@ def _render_shot(task: ShotTask) -> ShotResult:
     return ShotResult(task.shot_id, True, images=images, qa=qa, metrics=metrics)
 
 
-def _maybe_denoise(film):
-    """The denoiser, once ``variantshot.imaging.denoise`` exists; the raw radiance until then."""
+def _maybe_denoise(film, threads=None):
+    """``imaging.denoise.denoise_film`` when the denoiser can run here; the raw radiance otherwise."""
     try:
-        from ..imaging import denoise  # noqa: F401
+        from ..imaging import denoise
     except ImportError:
         return film.radiance
-    fn = getattr(denoise, "denoise_film", None) or getattr(denoise, "denoise", None)
-    return film.radiance if fn is None else fn(film)
+    if not denoise.is_available():
+        return film.radiance
+    return denoise.denoise_film(film, threads=threads)
 
 
 def _run_qa(task: ShotTask, primary: ImageOut, coverage, film) -> dict | None:
@@ -401,12 +406,22 @@ def _run_qa(task: ShotTask, primary: ImageOut, coverage, film) -> dict | None:
     from PIL import Image
 
     codes = np.asarray(Image.open(io.BytesIO(primary.data)))
+    swatch = None
+    if task.colour_lab_d65 is not None:
+        try:
+            from ..review.swatch import swatch_srgb8_for_lab
+        except ImportError:
+            swatch = None
+        else:
+            swatch = swatch_srgb8_for_lab(task.colour_lab_d65, task.rig, task.exposure_ev,
+                                          denoise=task.quality.denoise, seed=task.quality.seed, threads=task.threads)
     result = run_qa(
         codes,
         coverage=coverage,
         film=film,
         background=task.output.background,
         colour_lab_d65=task.colour_lab_d65,
+        swatch_srgb8=swatch,
         noise_target=task.quality.noise_target,
     )
     if hasattr(result, "to_dict"):
