@@ -177,20 +177,27 @@ def test_white_background_is_exactly_white_outside_the_shadow_region(catalog, tm
     assert purity["status"] == "pass"
 
 
-def test_formats_and_sizes_from_one_render(tiny_draft, catalog, tmp_path, repo_dir):
+def test_formats_and_sizes_from_one_render(monkeypatch, catalog, tmp_path, repo_dir):
     from PIL import Image
 
+    monkeypatch.setitem(quality_mod.QUALITY_PRESETS, "draft", TINY.replace(long_side_px=48))
     out = tmp_path / "out"
-    r = _render(catalog, out, repo_dir, "--only", "T-BTL-SAGE*", "--format", "png,jpg,webp", "--sizes", "8,200")
+    bad = _render(catalog, out, repo_dir, "--sizes", "8")
+    assert bad.exit_code == 2 and ">= 16" in bad.stderr  # refused before anything renders
+    r = _render(catalog, out, repo_dir, "--only", "T-BTL-SAGE*", "--format", "png,jpg,webp", "--sizes", "24,16,200")
     assert r.exit_code in (0, 1), r.output
     e = load_manifest(out)["shots"]["T-BTL-SAGE--front"]
-    paths = [im["path"] for im in e["images"]]
-    assert paths == ["shots/T-BTL-SAGE--front.png", "shots/T-BTL-SAGE--front.jpg", "shots/T-BTL-SAGE--front.webp"]
-    assert e["image"] == paths[0]
+    got = [(im["path"], im["width"]) for im in e["images"]]
+    stem = "shots/T-BTL-SAGE--front"
+    assert got == [(f"{stem}.png", 48), (f"{stem}.jpg", 48), (f"{stem}.webp", 48),
+                   (f"{stem}@24.png", 24), (f"{stem}@24.jpg", 24), (f"{stem}@24.webp", 24),
+                   (f"{stem}@16.png", 16), (f"{stem}@16.jpg", 16), (f"{stem}@16.webp", 16)]  # 200 > 48: skipped
+    assert e["image"] == got[0][0]
     for im in e["images"]:
         with Image.open(out / im["path"]) as pic:
-            assert pic.size == (im["width"], im["height"]) == (16, 16)
+            assert pic.size == (im["width"], im["height"])
             assert pic.format == {"png": "PNG", "jpg": "JPEG", "webp": "WEBP"}[im["format"]]
             assert pic.info.get("icc_profile")  # sRGB-tagged (IEC 61966-2-1)
-    # 8 px is below the 16 px minimum size: refused as bad input before anything renders
-    assert "16" in r.stderr or r.exit_code in (0, 1)
+    # the downsized PNG keeps the exact white of the corners (area filter, no ringing)
+    small = np.asarray(Image.open(out / f"{stem}@16.png").convert("RGB"))
+    assert np.all(small[0, 0] == 255) and np.all(small[-1, -1] == 255)
