@@ -201,3 +201,25 @@ def test_formats_and_sizes_from_one_render(monkeypatch, catalog, tmp_path, repo_
     # the downsized PNG keeps the exact white of the corners (area filter, no ringing)
     small = np.asarray(Image.open(out / f"{stem}@16.png").convert("RGB"))
     assert np.all(small[0, 0] == 255) and np.all(small[-1, -1] == 255)
+
+
+def test_a_catalog_column_picks_formats_and_background_per_row(tiny_draft, tmp_path, repo_dir):
+    catalog = tmp_path / "catalog.csv"
+    catalog.write_text(
+        "sku,product,colourway,colour,finish,angles,formats,background\n"
+        "T-A,bottle,Sage,#7a9a7a,matte,front,jpg;png,\n"
+        "T-B,bottle,Sage,#7a9a7a,matte,front,,transparent\n"
+        "T-C,bottle,Sage,#7a9a7a,matte,front,tiff,\n"
+    )
+    out = tmp_path / "out"
+    r = _render(catalog, out, repo_dir)
+    shots = load_manifest(out)["shots"]
+    assert [im["format"] for im in shots["T-A--front"]["images"]] == ["jpg", "png"]
+    assert shots["T-B--front"]["background"] == "transparent"
+    from PIL import Image
+
+    with Image.open(out / shots["T-B--front"]["image"]) as im:
+        assert im.mode == "RGBA"
+    assert shots["T-C--front"]["status"] == "failed"
+    assert "column formats" in shots["T-C--front"]["error"] or "formats" in shots["T-C--front"]["error"]
+    assert r.exit_code == 1

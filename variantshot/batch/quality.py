@@ -144,9 +144,9 @@ class OutputSpec:
 
 
 def parse_formats(text: str) -> tuple[str, ...]:
-    """``"png,jpg"`` -> ``("png", "jpg")`` (``jpeg`` is accepted for ``jpg``)."""
+    """``"png,jpg"`` (or ``"png;jpg"``) -> ``("png", "jpg")`` (``jpeg`` is accepted for ``jpg``)."""
     out = []
-    for part in str(text).split(","):
+    for part in str(text).replace(";", ",").split(","):
         p = part.strip().lower().lstrip(".")
         if not p:
             continue

@@ -540,7 +540,9 @@ def render_batch(
     quality : str or Quality
         ``draft``, ``proof``, ``final`` or a :class:`~variantshot.batch.quality.Quality`.
     output : OutputSpec, optional
-        Formats and sizes (and the batch's background); default one PNG on white.
+        Formats and sizes (and the batch's background); default one PNG on white.  A catalog
+        column ``formats`` (``png;jpg`` or ``png,jpg``) overrides the formats for its row, and a
+        ``background`` column the background.
     background : str, optional
         Overrides ``output.background`` for rows whose ``background`` cell is empty.
     rig : str, optional
@@ -578,7 +580,7 @@ def render_batch(
     from .lock import acquire_lock
     from .manifest import load_manifest, save_manifest
     from .plan import batch_settings, default_rig_name, plan_shots, shot_id
-    from .quality import match_only, quality_preset
+    from .quality import match_only, parse_formats, quality_preset
 
     started = time.perf_counter()
     out = Path(out_dir)
@@ -664,12 +666,21 @@ def render_batch(
             info = {"id": s.id, "sku": s.sku, "product": s.product, "colourway": s.colourway, "finish": s.finish,
                     "angle": s.angle}
             try:
+                row = by_sku[s.safe_sku].variant.row
+                shot_output = output.replace(background=bgv)
+                if row.get("formats"):  # a catalog column may pick the formats per row
+                    try:
+                        shot_output = shot_output.replace(formats=parse_formats(row["formats"]))
+                    except InputError as exc:
+                        v = by_sku[s.safe_sku].variant
+                        raise InputError(exc.message, file=v.file, row=v.line, column="formats",
+                                         accepted=exc.accepted) from None
                 spec = rig_for(s.rig or default_rig_name())
                 if s.safe_sku not in scene_bytes:
                     scene_bytes[s.safe_sku] = self_contained_gltf(by_sku[s.safe_sku])
                 tasks.append(ShotTask(
                     shot_id=s.id, scene_bytes=scene_bytes[s.safe_sku], scene_name=by_sku[s.safe_sku].scene_file,
-                    base_dir=None, angle=s.angle, rig=spec, quality=q, output=output.replace(background=bgv),
+                    base_dir=None, angle=s.angle, rig=spec, quality=q, output=shot_output,
                     exposure_ev=calibrate_exposure(spec), colour_lab_d65=tuple(s.colour_lab_d65), threads=threads,
                 ))
                 meta[s.id] = (info, s.key, bgv)
