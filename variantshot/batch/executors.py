@@ -25,6 +25,12 @@ __all__ = ["LocalExecutor", "DaskExecutor", "make_executor"]
 log = logging.getLogger(__name__)
 
 
+def _failed(task, exc):
+    from .runner import ShotResult
+
+    return ShotResult(task.shot_id, False, error=f"worker failed: {type(exc).__name__}: {exc}")
+
+
 def _worker_init(threads: int) -> None:
     os.environ.setdefault("NUMBA_NUM_THREADS", str(threads))
     from .. import _jit
@@ -61,10 +67,13 @@ class LocalExecutor:
         with cf.ProcessPoolExecutor(
             max_workers=self.workers, mp_context=mp.get_context("spawn"), initializer=_worker_init, initargs=(self.threads,)
         ) as pool:
-            futures = [pool.submit(fn, t) for t in tasks]
+            futures = {pool.submit(fn, t): t for t in tasks}
             try:
                 for f in cf.as_completed(futures):
-                    yield f.result()
+                    try:
+                        yield f.result()
+                    except Exception as exc:  # noqa: BLE001 - a dead worker fails its shot only
+                        yield _failed(futures[f], exc)
             finally:
                 for f in futures:
                     f.cancel()
@@ -99,9 +108,13 @@ class DaskExecutor:
     def map(self, fn: Callable, tasks: Iterable) -> Iterator:
         from distributed import as_completed
 
-        futures = [self.client.submit(fn, t, pure=False, retries=self.retries, key=f"shot-{t.shot_id}") for t in tasks]
-        for f in as_completed(futures):
-            yield f.result()
+        futures = {self.client.submit(fn, t, pure=False, retries=self.retries, key=f"shot-{t.shot_id}"): t
+                   for t in tasks}
+        for f in as_completed(list(futures)):
+            try:
+                yield f.result()
+            except Exception as exc:  # noqa: BLE001 - retries exhausted: the shot fails, the batch goes on
+                yield _failed(futures[f], exc)
 
     def close(self) -> None:
         self.client.close()

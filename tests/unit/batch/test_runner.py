@@ -78,3 +78,23 @@ def test_local_executor_runs_everything_in_process_and_in_workers():
     assert list(LocalExecutor(1).map(_double, [1, 2, 3])) == [2, 4, 6]
     assert sorted(LocalExecutor(2).map(_double, [1, 2, 3, 4])) == [2, 4, 6, 8]
     assert math.isfinite(LocalExecutor(2).threads)
+
+
+class _Task:
+    def __init__(self, shot_id):
+        self.shot_id = shot_id
+
+
+def _die_on_b(task):
+    import os
+
+    from variantshot.batch.runner import ShotResult
+
+    if task.shot_id == "b":
+        os._exit(9)  # the worker process dies mid-shot
+    return ShotResult(task.shot_id, True)
+
+
+def test_a_dead_worker_fails_its_shot_not_the_batch():
+    results = {r.shot_id: r for r in LocalExecutor(2).map(_die_on_b, [_Task("a"), _Task("b")])}
+    assert not results["b"].ok and "worker failed" in results["b"].error
