@@ -159,8 +159,9 @@ def _shear_setup(dx, dy, dz):
 def _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz):
     """Watertight test of leaf-order triangle i; returns (hit, t, b1, b2) in float64.
 
-    ``hit`` is False when the ray misses the triangle's plane region or the triangle is
-    degenerate (determinant 0); t is unbounded (the caller applies tmin / tmax).
+    ``hit`` is False when the ray passes outside an edge (one branch on min / max of the three
+    edge functions).  t is unbounded (the caller applies tmin / tmax); a degenerate triangle or
+    an edge-on ray (determinant 0) gives an infinite or NaN t, which fails every range test.
     """
     base = 9 * i
     # vertices relative to the ray origin, in permuted axis order
