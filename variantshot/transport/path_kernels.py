@@ -22,7 +22,8 @@ of single-sided materials are shaded like fronts but do not emit (see ``material
 Alpha: MASK passes rays where alpha < cutoff; BLEND passes a ray with probability 1 - alpha
 (stochastic transparency); shadow rays through BLEND surfaces are attenuated by 1 - alpha.
 
-Sample dimensions: 0-1 filter, 2-3 lens, then per bounce ``b`` the block 4 + 16 b:
+Sample dimensions: 0-1 filter, 2-3 lens (both Owen-scrambled Sobol' pairs), then per bounce
+``b`` the hashed block 4 + 16 b:
 +0 light entry, +1 triangle, +2..3 point on the light, +4 lobe, +5..6 BSDF direction,
 +7 roulette; alpha pass-through uses 1 << 20 + 64 b + k.
 
@@ -48,6 +49,7 @@ from .sampling_kernels import (
     power_heuristic,
     sample_discrete,
     sample_state,
+    sobol_pair,
     sample_tent,
     uniform_from_state,
 )
@@ -142,8 +144,8 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
                  mat_table, tex_pixels, tex_table,
                  punctual, emit_tris, emit_cdf, tri_emit_prob, sel_cdf,
                  env_pixels, env_cdf_rows, env_cdf_cols, env_params,
-                 cam, opts, fopts, px_x, px_y, state):
-    """One camera sample through pixel (px_x, px_y).
+                 cam, opts, fopts, px_x, px_y, sample_index, state):
+    """One camera sample (number ``sample_index``) through pixel (px_x, px_y).
 
     Returns (r, g, b, albedo r, g, b, normal x, y, z, coverage, depth) where depth is -1 when
     the camera ray reached no surface.
@@ -158,9 +160,13 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
     p_env_sel = (sel_cdf[1] - sel_cdf[0]) / sel_total if sel_total > 0.0 else 0.0
     p_emit_sel = (sel_cdf[2] - sel_cdf[1]) / sel_total if sel_total > 0.0 else 0.0
 
-    fx = px_x + 0.5 + sample_tent(uniform_from_state(state, 0), radius)
-    fy = px_y + 0.5 + sample_tent(uniform_from_state(state, 1), radius)
-    ox, oy, oz, dx, dy, dz = generate_ray(cam, fx, fy, uniform_from_state(state, 2), uniform_from_state(state, 3))
+    # dims 0-3 (filter, lens): Owen-scrambled Sobol' pairs (sampling_kernels)
+    pixel = px_y * opts[0] + px_x
+    uf0, uf1 = sobol_pair(pixel, sample_index, 0, opts[4])
+    ul0, ul1 = sobol_pair(pixel, sample_index, 1, opts[4])
+    fx = px_x + 0.5 + sample_tent(uf0, radius)
+    fy = px_y + 0.5 + sample_tent(uf1, radius)
+    ox, oy, oz, dx, dy, dz = generate_ray(cam, fx, fy, ul0, ul1)
 
     lr = 0.0
     lg = 0.0
@@ -422,7 +428,7 @@ def render_rows(positions, normals, uvs, colours, triangles, tri_material,
                                  mat_table, tex_pixels, tex_table,
                                  punctual, emit_tris, emit_cdf, tri_emit_prob, sel_cdf,
                                  env_pixels, env_cdf_rows, env_cdf_cols, env_params,
-                                 cam, opts, fopts, x, y, state)
+                                 cam, opts, fopts, x, y, s, state)
                 sum_rgb[y, x, 0] += r[0]
                 sum_rgb[y, x, 1] += r[1]
                 sum_rgb[y, x, 2] += r[2]

@@ -7,6 +7,14 @@ seed gives the same image bit for bit on any thread count.  The hash is Chris We
 int64 arithmetic and masked to 32 bits (int64 multiplication wraps modulo 2**64, so the low 32
 bits are exact).
 
+The first dimensions -- the pixel filter (0-1) and the lens (2-3) -- are low-discrepancy
+instead: two independently shuffled and Owen-scrambled 2-D Sobol' sequences per pixel
+(B. Burley, "Practical Hash-based Owen Scrambling", JCGT 9(4), 2020: nested uniform scrambling
+by a hashed Laine-Karras permutation of the bit-reversed value, and the same scramble applied
+to the sample index to decorrelate pixels).  Any 2**k consecutive samples of a pixel starting
+at a multiple of 2**k then form a (0, k, 2)-net, which stratifies anti-aliasing and depth of
+field.  The scramble seeds are hashes of (pixel, pair, seed), so this too is thread-invariant.
+
 Dimension layout used by the path kernels (documented here because it is part of the
 reproducibility contract): 0-1 the pixel filter, 2-3 the lens, then 16 dimensions per bounce
 starting at 4 (see ``path_kernels``); stochastic alpha pass-through draws from a separate
@@ -56,6 +64,64 @@ def uniform_from_state(state, dim):
 def uniform(pixel_index, sample_index, dim, seed):
     """Uniform float64 in [0, 1) from (pixel, sample, dimension, seed); thread-invariant."""
     return uniform_from_state(sample_state(pixel_index, sample_index, seed), dim)
+
+
+# ------------------------------------------------------------------ Owen-scrambled Sobol' pairs
+
+
+@njit(**KERNEL)
+def reverse_bits32(x):
+    """Bit reversal of a 32-bit value held in an int64."""
+    x = x & 0xFFFFFFFF
+    x = ((x >> 1) & 0x55555555) | ((x & 0x55555555) << 1)
+    x = ((x >> 2) & 0x33333333) | ((x & 0x33333333) << 2)
+    x = ((x >> 4) & 0x0F0F0F0F) | ((x & 0x0F0F0F0F) << 4)
+    x = ((x >> 8) & 0x00FF00FF) | ((x & 0x00FF00FF) << 8)
+    x = ((x >> 16) & 0x0000FFFF) | ((x & 0x0000FFFF) << 16)
+    return x & 0xFFFFFFFF
+
+
+@njit(**KERNEL)
+def laine_karras_permutation(x, seed):
+    """Burley (2020) listing 2: a hash that only lets each bit depend on lower bits."""
+    x = (x + seed) & 0xFFFFFFFF
+    x ^= (x * 0x6C50B47C) & 0xFFFFFFFF
+    x ^= (x * 0xB82F1E52) & 0xFFFFFFFF
+    x ^= (x * 0xC7AFE638) & 0xFFFFFFFF
+    x ^= (x * 0x8D22F6E6) & 0xFFFFFFFF
+    return x & 0xFFFFFFFF
+
+
+@njit(**KERNEL)
+def nested_uniform_scramble(x, seed):
+    """Owen scrambling of a 32-bit fixed-point value (Burley 2020, listing 3)."""
+    return reverse_bits32(laine_karras_permutation(reverse_bits32(x), seed))
+
+
+@njit(**KERNEL)
+def sobol_dim1(index):
+    """Second dimension of Sobol' (generator from the primitive polynomial x + 1, m_1 = 1:
+    direction numbers m_k = 2 m_(k-1) xor m_(k-1), i.e. Pascal's triangle mod 2)."""
+    x = 0
+    v = 0x80000000
+    i = index & 0xFFFFFFFF
+    while i != 0:
+        if i & 1:
+            x ^= v
+        i >>= 1
+        v ^= v >> 1
+    return x
+
+
+@njit(**KERNEL)
+def sobol_pair(pixel_index, sample_index, pair, seed):
+    """Two stratified uniforms in [0, 1): shuffled, Owen-scrambled Sobol' dims 0 and 1."""
+    base = hash32(hash32(hash32(seed ^ 0x2545F491) ^ (pixel_index & 0xFFFFFFFF)) ^ ((pixel_index >> 32) + 0x51ED27))
+    base = hash32(base ^ (pair * 0x9E3779B9 & 0xFFFFFFFF))
+    index = nested_uniform_scramble(sample_index & 0xFFFFFFFF, base)
+    x = nested_uniform_scramble(reverse_bits32(index), hash32(base ^ 0x68BC21EB))
+    y = nested_uniform_scramble(sobol_dim1(index), hash32(base ^ 0x02E5BE93))
+    return x * 2.3283064365386963e-10, y * 2.3283064365386963e-10
 
 
 # ----------------------------------------------------------------------------- warps

@@ -78,7 +78,7 @@ def test_alpha_mask_and_blend():
 def test_single_sided_emitters_emit_from_the_front_only():
     # back-face policy (materials.py): a single-sided emissive quad is dark from behind; a
     # double-sided one emits on both sides.
-    p, t = quad((0, 0, 0), (1, 0, 0), (0, 1, 0))  # front faces +z
+    p, t = quad((0, 0, 0), (3, 0, 0), (0, 3, 0))  # front faces +z, fills the view and the filter's reach
     for double, back in [(False, 0.0), (True, 2.0)]:
         mat = Material(base_colour_factor=(0, 0, 0, 1), emissive_factor=(2, 2, 2), double_sided=double,
                        metallic_factor=0.0, extensions=LAMBERT)

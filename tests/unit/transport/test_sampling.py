@@ -102,3 +102,29 @@ def test_power_heuristic_and_orthonormal_basis():
         t = np.array(sk.onb_from_normal(*n))
         m = np.stack([t[:3], t[3:], n])
         np.testing.assert_allclose(m @ m.T, np.eye(3), atol=1e-12)
+
+
+def test_sobol_pairs_form_nets_per_pixel():
+    # Owen-scrambled Sobol' dims 0-1 form a (0, 2)-sequence (Sobol' 1967; Owen scrambling keeps
+    # the net property, Burley 2020 JCGT 9(4)): the first 2^k samples of a pixel put exactly one
+    # point in every elementary interval of area 2^-k, for every split 2^a x 2^(k-a).
+    for pixel, pair in [(0, 0), (12345, 1), (2**33 + 7, 0)]:
+        k = 8
+        pts = np.array([sk.sobol_pair(pixel, s, pair, 9) for s in range(2**k)])
+        assert pts.min() >= 0 and pts.max() < 1
+        for a in range(k + 1):
+            cells = (pts[:, 0] * 2**a).astype(int) * 2 ** (k - a) + (pts[:, 1] * 2 ** (k - a)).astype(int)
+            assert np.array_equal(np.sort(cells), np.arange(2**k)), (pixel, a)
+    # and different pixels / pairs / seeds get different (decorrelated) point sets
+    a = np.array([sk.sobol_pair(1, s, 0, 9) for s in range(64)])
+    b = np.array([sk.sobol_pair(2, s, 0, 9) for s in range(64)])
+    c = np.array([sk.sobol_pair(1, s, 0, 10) for s in range(64)])
+    assert abs(np.corrcoef(a[:, 0], b[:, 0])[0, 1]) < 0.3 and not np.allclose(a, c)
+
+
+def test_sobol_dimension_one_direction_numbers():
+    # Sobol' dim 1 generator (x + 1, m_1 = 1) = Pascal's triangle mod 2: the first points are
+    # 0, 1/2, 3/4, 1/4, 5/8, 1/8, 3/8, 7/8 in natural index order (direction numbers m = 1, 3, 5, 15 as
+    # in Joe & Kuo 2008, from memory; the net test above is the independent check).
+    got = [sk.sobol_dim1(i) / 2**32 for i in range(8)]
+    assert got == [0.0, 0.5, 0.75, 0.25, 0.625, 0.125, 0.375, 0.875]
