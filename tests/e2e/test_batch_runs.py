@@ -55,6 +55,12 @@ def test_second_run_renders_nothing_and_an_edited_row_only_its_shots(tiny_draft,
     before = _rendered_ids(out)
     assert check_manifest(out) == []
 
+    # `variantshot plan` keys shots the same way: everything is up to date now
+    plan = CliRunner().invoke(app, ["plan", str(catalog), "--out", str(out), "--templates", str(repo_dir / "templates"),
+                                    "--json"])
+    assert plan.exit_code == 0, plan.output
+    assert json.loads(plan.stdout)["counts"] == {"new": 0, "changed": 0, "up-to-date": 4}
+
     r2 = _render(catalog, out, repo_dir, "--json")
     assert [line for line in r2.stdout.splitlines() if line.startswith("{")] == []  # nothing rendered
     assert _rendered_ids(out) == before
