@@ -28,9 +28,10 @@ class RenderSettings:
         Seed of the sample hash; the same seed gives the same image bit for bit on any
         thread count.
     max_depth : int
-        Safety net on the path length (Russian roulette ends paths; this cap only stops
-        pathological scenes such as a closed white mirror box).  Its bias is below
-        ``albedo**max_depth``, invisible at the default.
+        Safety net on the path length, in path segments from the camera (1: emitters seen
+        directly, 2: direct lighting, 3: one indirect bounce, ...).  Russian roulette ends
+        paths; the cap only stops pathological scenes such as a closed white mirror box.  Its
+        bias is below ``albedo**max_depth``, invisible at the default 256.
     threads : int or None
         numba threads for this render (None: all cores).  Never changes the image.
     camera_name : str or None
