@@ -29,10 +29,10 @@ class BVH(NamedTuple):
         Child boxes of the 8-wide nodes (layout in ``bvh_kernels``).
     nodes_i : (8 * n_nodes,) int32 ndarray
         Child references (inner node index, or an encoded leaf range).
-    tris_f : (9 * n_tris,) float32 ndarray
-        Triangle vertices in leaf order.
-    tri_ids : (n_tris,) int32 ndarray
-        Original triangle index of each leaf-order triangle.
+    tris_f : (36 * n_packs,) float32 ndarray
+        Triangle vertices in packs of 4 (structure-of-arrays, layout in ``bvh_kernels``).
+    tri_ids : (4 * n_packs,) int32 ndarray
+        Original triangle index of each pack lane (short packs repeat their last triangle).
     bounds : (2, 3) float32 ndarray
         World box [min, max] of all triangles (inf / -inf when there are none).
     build_seconds : float
@@ -131,13 +131,13 @@ def build_bvh(positions, triangles) -> BVH:
     order, lo, hi, left, start, count = bk.build_binary(
         tri_lo, tri_hi, centroid, MAX_LEAF, N_BINS, TRAVERSAL_COST
     )
-    nodes_f, nodes_i = bk.collapse_wide(lo, hi, left, start, count)
-    tris_f = bk.gather_triangles(pos, tris, order)
+    nodes_f, nodes_i, pack_start, pack_count = bk.collapse_wide(lo, hi, left, start, count)
+    tris_f, tri_ids = bk.gather_triangles(pos, tris, order, pack_start, pack_count)
     if tris.shape[0]:
         bounds = np.stack([tri_lo.min(axis=0), tri_hi.max(axis=0)]).astype(np.float32)
     else:
         bounds = np.array([[np.inf] * 3, [-np.inf] * 3], dtype=np.float32)
-    return BVH(nodes_f, nodes_i, tris_f, order.astype(np.int32), bounds,
+    return BVH(nodes_f, nodes_i, tris_f, tri_ids, bounds,
                time.perf_counter() - t_start)
 
 

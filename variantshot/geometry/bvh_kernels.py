@@ -14,13 +14,16 @@ The tree is WIDTH-wide (WIDTH = 8).  Node 0 is the root and is always an inner n
     max = -inf, so no ray ever enters it.
 ``nodes_i`` : (WIDTH n_nodes,) int32
     Child references of node ``n`` at ``8 n``.  ``ref >= 0`` is an inner node index.  ``ref < 0``
-    is a leaf: with ``v = ~ref`` (= -ref - 1) its triangles are ``v >> 3 .. (v >> 3) + (v & 7) - 1``
-    in leaf order (1 to 7 triangles; the build makes at most 4).  Empty slots hold -1.
-``tris_f`` : (9 n_tris,) float32
-    The three vertices of each triangle in leaf order, ``[v0x v0y v0z v1x v1y v1z v2x v2y v2z]``,
-    in the triangle's original vertex order (so barycentrics refer to the original vertices).
-``tri_ids`` : (n_tris,) int32
-    Original triangle index of each leaf-order triangle.
+    is a leaf: with ``v = ~ref`` (= -ref - 1) it holds ``v & 7`` triangles (1 to 7; the build
+    makes at most 4) in the ``ceil((v & 7) / 4)`` packs starting at pack ``v >> 3``.  Empty slots
+    hold -1.
+``tris_f`` : (36 n_packs,) float32
+    Triangles in packs of 4, structure-of-arrays: pack ``p``, vertex ``j``, axis ``q``, lane ``k``
+    at ``36 p + 4 (3 j + q) + k``, in each triangle's original vertex order (so barycentrics
+    refer to the original vertices).  A leaf's four triangles are tested as one vector.  A pack
+    of fewer than 4 repeats its last triangle in the spare lanes.
+``tri_ids`` : (4 n_packs,) int32
+    Original triangle index of each pack lane.
 
 Traversal: ordered (children hit are pushed far-to-near, the nearest is visited next, and a
 stacked subtree is skipped when its entry distance is beyond the closest hit so far); any-hit
@@ -156,24 +159,25 @@ def _shear_setup(dx, dy, dz):
 
 
 @njit(**INLINE)
-def _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz):
-    """Watertight test of leaf-order triangle i; returns (hit, t, b1, b2) in float64.
+def _tri_test(tris_f, base, stride, okx, oky, okz, kx, ky, kz, sx, sy, sz):
+    """Watertight test of one triangle; returns (hit, t, b1, b2) in float64.
 
+    Vertex j, axis q is read at ``tris_f[base + stride (3 j + q)]`` (one lane of a pack).
     ``hit`` is False when the ray passes outside an edge (one branch on min / max of the three
     edge functions).  t is unbounded (the caller applies tmin / tmax); a degenerate triangle or
     an edge-on ray (determinant 0) gives an infinite or NaN t, which fails every range test.
+    This is the reference form of the vector test ``_tri_test4`` (same operations, one lane).
     """
-    base = 9 * i
     # vertices relative to the ray origin, in permuted axis order
-    ax = _get(tris_f, base + kx) - okx
-    ay = _get(tris_f, base + ky) - oky
-    az = _get(tris_f, base + kz) - okz
-    bx = _get(tris_f, base + 3 + kx) - okx
-    by = _get(tris_f, base + 3 + ky) - oky
-    bz = _get(tris_f, base + 3 + kz) - okz
-    cx = _get(tris_f, base + 6 + kx) - okx
-    cy = _get(tris_f, base + 6 + ky) - oky
-    cz = _get(tris_f, base + 6 + kz) - okz
+    ax = _get(tris_f, base + stride * kx) - okx
+    ay = _get(tris_f, base + stride * ky) - oky
+    az = _get(tris_f, base + stride * kz) - okz
+    bx = _get(tris_f, base + stride * (3 + kx)) - okx
+    by = _get(tris_f, base + stride * (3 + ky)) - oky
+    bz = _get(tris_f, base + stride * (3 + kz)) - okz
+    cx = _get(tris_f, base + stride * (6 + kx)) - okx
+    cy = _get(tris_f, base + stride * (6 + ky)) - oky
+    cz = _get(tris_f, base + stride * (6 + kz)) - okz
     # shear so the ray is the +z axis
     ax = ax - sx * az
     ay = ay - sy * az
@@ -194,6 +198,23 @@ def _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz):
     # det == 0 (degenerate or edge-on) gives t = +-inf or NaN, which fails every range test
     inv_det = 1.0 / det
     return True, t_scaled * inv_det, v * inv_det, w * inv_det
+
+
+@njit(**INLINE)
+def _tri_test4_scalar(tris_f, pack, okx, oky, okz, kx, ky, kz, sx, sy, sz, t_lo, t_hi):
+    """The 4 triangles of ``pack`` one by one: (mask of lanes hit in (t_lo, t_hi), t, b1, b2)."""
+    ts = np.empty(4, np.float64)
+    b1s = np.empty(4, np.float64)
+    b2s = np.empty(4, np.float64)
+    mask = 0
+    for k in range(4):
+        hit, t, b1, b2 = _tri_test(tris_f, 36 * pack + k, 4, okx, oky, okz, kx, ky, kz, sx, sy, sz)
+        ts[k] = t
+        b1s[k] = b1
+        b2s[k] = b2
+        if hit and t > t_lo and t < t_hi:
+            mask |= 1 << k
+    return mask, ts, b1s, b2s
 
 
 @njit(**INLINE)
@@ -297,6 +318,7 @@ else:
 
 if numba.config.DISABLE_JIT:
     _node_test = _node_test_scalar
+    _tri_test4 = _tri_test4_scalar
 
     def _ctz(m):
         k = 0
@@ -362,6 +384,88 @@ else:
             lanes = [builder.extract_element(tn, ir.Constant(i32, k)) for k in range(WIDTH)]
             lanes = context.make_tuple(builder, lanes_t, lanes)
             return context.make_tuple(builder, signature.return_type, [lanes, mask])
+
+        return sig, codegen
+
+    @intrinsic
+    def _tri_test4(typingctx, tris_f, pack, okx, oky, okz, kx, ky, kz, sx, sy, sz, t_lo, t_hi):
+        """:func:`_tri_test4_scalar` as 4-lane LLVM vector code (same IEEE operations per lane).
+
+        Returns (mask of lanes hit with t_lo < t < t_hi, t, b1, b2), the last three as
+        4-tuples of float64.
+        """
+        f64x4 = types.UniTuple(types.float64, 4)
+        sig = types.Tuple((types.int64, f64x4, f64x4, f64x4))(
+            tris_f, pack, okx, oky, okz, kx, ky, kz, sx, sy, sz, t_lo, t_hi
+        )
+
+        def codegen(context, builder, signature, args):
+            ir = cgutils.ir
+            i32 = ir.IntType(32)
+            i64 = ir.IntType(64)
+            fty = ir.FloatType()
+            dty = ir.DoubleType()
+            vf = ir.VectorType(fty, 4)
+            vd = ir.VectorType(dty, 4)
+            zeros = ir.Constant(ir.VectorType(i32, 4), [0, 0, 0, 0])
+            data = _base_pointer(context, builder, signature.args[0], args[0])
+            a = signature.args
+            r_pack = context.cast(builder, args[1], a[1], types.int64)
+            r_okx, r_oky, r_okz = (context.cast(builder, args[k], a[k], types.float32) for k in (2, 3, 4))
+            r_kx, r_ky, r_kz = (context.cast(builder, args[k], a[k], types.int64) for k in (5, 6, 7))
+            r_sx, r_sy, r_sz = (context.cast(builder, args[k], a[k], types.float32) for k in (8, 9, 10))
+            r_lo, r_hi = (context.cast(builder, args[k], a[k], types.float64) for k in (11, 12))
+            base = builder.mul(r_pack, ir.Constant(i64, 36))
+
+            def splat(x, ty):
+                v = builder.insert_element(ir.Constant(ty, None), x, ir.Constant(i32, 0))
+                return builder.shuffle_vector(v, ir.Constant(ty, None), zeros)
+
+            def load(vertex, axis):  # lanes of vertex `vertex`, axis index value `axis`
+                row = builder.add(ir.Constant(i64, 3 * vertex), axis)
+                off = builder.add(base, builder.mul(row, ir.Constant(i64, 4)))
+                ptr = builder.gep(data, [off])
+                return builder.load(builder.bitcast(ptr, vf.as_pointer()), align=4)
+
+            def vmin(x, y):
+                return builder.select(builder.fcmp_ordered("<", x, y), x, y)
+
+            def vmax(x, y):
+                return builder.select(builder.fcmp_ordered(">", x, y), x, y)
+
+            okx, oky, okz = splat(r_okx, vf), splat(r_oky, vf), splat(r_okz, vf)
+            sx, sy, sz = splat(r_sx, vf), splat(r_sy, vf), splat(r_sz, vf)
+            pts = []
+            for j in range(3):
+                px = builder.fsub(load(j, r_kx), okx)
+                py = builder.fsub(load(j, r_ky), oky)
+                pz = builder.fsub(load(j, r_kz), okz)
+                px = builder.fsub(px, builder.fmul(sx, pz))
+                py = builder.fsub(py, builder.fmul(sy, pz))
+                pts.append((builder.fpext(px, vd), builder.fpext(py, vd), builder.fpext(builder.fmul(sz, pz), vd)))
+            (ax, ay, az), (bx, by, bz), (cx, cy, cz) = pts
+            u = builder.fsub(builder.fmul(cx, by), builder.fmul(cy, bx))
+            v = builder.fsub(builder.fmul(ax, cy), builder.fmul(ay, cx))
+            w = builder.fsub(builder.fmul(bx, ay), builder.fmul(by, ax))
+            e_min = vmin(vmin(u, v), w)
+            e_max = vmax(vmax(u, v), w)
+            zero = ir.Constant(vd, [0.0] * 4)
+            inside = builder.or_(builder.fcmp_ordered(">=", e_min, zero), builder.fcmp_ordered("<=", e_max, zero))
+            det = builder.fadd(builder.fadd(u, v), w)
+            t_scaled = builder.fadd(builder.fadd(builder.fmul(u, az), builder.fmul(v, bz)), builder.fmul(w, cz))
+            inv = builder.fdiv(ir.Constant(vd, [1.0] * 4), det)
+            t = builder.fmul(t_scaled, inv)
+            b1 = builder.fmul(v, inv)
+            b2 = builder.fmul(w, inv)
+            ok = builder.and_(inside, builder.fcmp_ordered(">", t, splat(r_lo, vd)))
+            ok = builder.and_(ok, builder.fcmp_ordered("<", t, splat(r_hi, vd)))
+            mask = builder.zext(builder.bitcast(ok, ir.IntType(4)), i64)
+
+            def lanes(x):
+                vals = [builder.extract_element(x, ir.Constant(i32, k)) for k in range(4)]
+                return context.make_tuple(builder, f64x4, vals)
+
+            return context.make_tuple(builder, signature.return_type, [mask, lanes(t), lanes(b1), lanes(b2)])
 
         return sig, codegen
 
@@ -486,16 +590,17 @@ def _closest_core(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmi
                     continue
             else:
                 v = ~ref
-                start = v >> 3
-                stop = start + (v & 7)
-                for i in range(start, stop):
-                    hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
-                    if hit & (t > t_lo) & (t < t_hi):
-                        t_hi = np.float32(t)
-                        t_best = np.float32(t)
-                        tri_best = i
-                        b1_best = np.float32(b1)
-                        b2_best = np.float32(b2)
+                first_pack = v >> 3
+                for pk in range(first_pack, first_pack + ((v & 7) + 3) // 4):
+                    hits, ts, b1s, b2s = _tri_test4(tris_f, pk, okx, oky, okz, kx, ky, kz, sx, sy, sz, t_lo, t_hi)
+                    if hits != 0:
+                        for k in range(4):
+                            if (hits >> k) & 1 and ts[k] < t_hi:
+                                t_hi = np.float32(ts[k])
+                                t_best = np.float32(ts[k])
+                                tri_best = 4 * pk + k
+                                b1_best = np.float32(b1s[k])
+                                b2_best = np.float32(b2s[k])
             # pop the nearest stacked subtree that can still hold a closer hit
             found = False
             while sp > 0:
@@ -556,11 +661,10 @@ def _any_core(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, t
                     continue
             else:
                 v = ~ref
-                start = v >> 3
-                stop = start + (v & 7)
-                for i in range(start, stop):
-                    hit, t, b1, b2 = _tri_test(tris_f, i, okx, oky, okz, kx, ky, kz, sx, sy, sz)
-                    if hit & (t > t_lo) & (t < t_hi):
+                first_pack = v >> 3
+                for pk in range(first_pack, first_pack + ((v & 7) + 3) // 4):
+                    hits, ts, b1s, b2s = _tri_test4(tris_f, pk, okx, oky, okz, kx, ky, kz, sx, sy, sz, t_lo, t_hi)
+                    if hits != 0:
                         hit_any = True
                         break
                 if hit_any:
@@ -879,6 +983,8 @@ def collapse_wide(lo, hi, left, start, count):
     -------
     nodes_f : (6 WIDTH n_wide,) float32 ndarray
     nodes_i : (WIDTH n_wide,) int32 ndarray
+    pack_start, pack_count : (P,) int64 ndarray
+        Leaf-order start and size (1..4) of each 4-triangle pack the leaves refer to.
     """
     m = left.shape[0]
     cap = max(1, m)
@@ -888,10 +994,18 @@ def collapse_wide(lo, hi, left, start, count):
     for k in range(row * cap):
         nodes_f[k] = np.inf if (k // WIDTH) % 2 == 0 else -np.inf
     if m == 0:
-        return nodes_f[:row].copy(), nodes_i[:WIDTH].copy()
+        empty = np.zeros(0, np.int64)
+        return nodes_f[:row].copy(), nodes_i[:WIDTH].copy(), empty, empty
     queue = np.empty(cap, np.int64)  # binary node of each wide node
     queue[0] = 0
     n_wide = 1
+    n_leaf_tris = 0
+    for c in range(m):
+        if left[c] < 0:
+            n_leaf_tris += count[c]
+    pack_start = np.empty(n_leaf_tris + 1, np.int64)  # leaf-order start of each 4-triangle pack
+    pack_count = np.empty(n_leaf_tris + 1, np.int64)
+    n_packs = 0
     head = 0
     kids = np.empty(WIDTH, np.int64)
     while head < n_wide:
@@ -933,23 +1047,35 @@ def collapse_wide(lo, hi, left, start, count):
                         nodes_f[row * w + 2 * WIDTH * q + k] = np.inf
                         nodes_f[row * w + 2 * WIDTH * q + WIDTH + k] = -np.inf
                 else:
-                    nodes_i[WIDTH * w + k] = ~((start[c] << 3) | count[c])
+                    nodes_i[WIDTH * w + k] = ~((n_packs << 3) | count[c])
+                    for q in range(0, count[c], 4):
+                        pack_start[n_packs] = start[c] + q
+                        pack_count[n_packs] = min(4, count[c] - q)
+                        n_packs += 1
             else:
                 queue[n_wide] = c
                 nodes_i[WIDTH * w + k] = n_wide
                 n_wide += 1
-    return nodes_f[: row * n_wide].copy(), nodes_i[: WIDTH * n_wide].copy()
+    return (nodes_f[: row * n_wide].copy(), nodes_i[: WIDTH * n_wide].copy(),
+            pack_start[:n_packs].copy(), pack_count[:n_packs].copy())
 
 
 @njit(**KERNEL)
-def gather_triangles(positions, triangles, order):
-    """Leaf-order vertex table ``tris_f`` (9 T,) float32 from positions and triangles."""
-    n = order.shape[0]
-    out = np.empty(9 * n, np.float32)
-    for k in range(n):
-        t = order[k]
-        for j in range(3):
-            v = triangles[t, j]
-            for q in range(3):
-                out[9 * k + 3 * j + q] = positions[v, q]
-    return out
+def gather_triangles(positions, triangles, order, pack_start, pack_count):
+    """4-triangle packs ``tris_f`` (36 P,) float32 and their ``tri_ids`` (4 P,) int32.
+
+    Pack p lane k holds triangle ``order[pack_start[p] + k]``; lanes past ``pack_count[p]``
+    repeat the pack's last triangle (same vertices and id, so they can never win a hit).
+    """
+    n = pack_start.shape[0]
+    out = np.empty(36 * n, np.float32)
+    ids = np.empty(4 * n, np.int32)
+    for p in range(n):
+        for k in range(4):
+            t = order[pack_start[p] + min(k, pack_count[p] - 1)]
+            ids[4 * p + k] = t
+            for j in range(3):
+                v = triangles[t, j]
+                for q in range(3):
+                    out[36 * p + 4 * (3 * j + q) + k] = positions[v, q]
+    return out, ids

@@ -145,8 +145,8 @@ def test_all_same_centroid_and_duplicates_build():
     b = build_bvh(pos, tris)
     h = intersect(b, np.array([[0.2, 0.2, 1.0]], np.float32), np.array([[0, 0, -1.0]], np.float32))
     assert h.t[0] == pytest.approx(1.0) and 0 <= h.tri[0] < 5000
-    # leaf order holds every triangle exactly once
-    assert sorted(b.tri_ids.tolist()) == list(range(5000))
+    # the leaves hold every triangle (spare lanes of a short pack repeat one of them)
+    assert set(b.tri_ids.tolist()) == set(range(5000))
 
 
 def test_zero_area_triangles_never_hit():
