@@ -177,8 +177,8 @@ def test_spot_light_cone_falloff_on_plane():
 # ------------------------------------------------------------------------------- disk emitter
 
 
-@pytest.mark.parametrize("mode", ["full", "baseline"])
-def test_disk_emitter_on_axis_irradiance(mode):
+@pytest.mark.parametrize("mode, alpha", [("full", 1.0), ("baseline", 1.0), ("full", 0.5), ("baseline", 0.5)])
+def test_disk_emitter_on_axis_irradiance(mode, alpha):
     # REFERENCES §6(d): Lambertian disk of radiance L, radius R, on-axis at height h:
     # E = pi L R^2 / (R^2 + h^2) (configuration factor element -> coaxial disk, Howell's
     # catalogue).  Measured on a Lambertian floor (L_out = rho / pi * E) seen obliquely so that
@@ -189,15 +189,17 @@ def test_disk_emitter_on_axis_irradiance(mode):
     dp, dt = disk((0, h, 0), (0, -1, 0), radius, n_seg=512)
     fp, ft = quad((0, 0, 0), (20, 0, 0), (0, 0, -20))
     pos, tris, tri_mat, nrm = combine([(dp, dt, 1, None), (fp, ft, 0, None)])
-    emitter = Material(name="disk", base_colour_factor=(0, 0, 0, 1), emissive_factor=(le, le, le), metallic_factor=0.0, extensions=LAMBERT)
+    # alpha < 1: a BLEND emitter (stochastic coverage) emits alpha x Le on average, so E scales by alpha
+    emitter = Material(name="disk", base_colour_factor=(0, 0, 0, alpha), emissive_factor=(le, le, le),
+                       metallic_factor=0.0, extensions=LAMBERT, alpha_mode="OPAQUE" if alpha == 1 else "BLEND")
     scene = make_scene(pos, tris, normals=nrm, tri_material=tri_mat, materials=[lambert(rho), emitter])
     cam = camera((6.0, 0.4, 0.0), (0, 0, 0), yfov_rad=0.0005)
     film = render(scene, RenderSettings(width=2, height=2, spp=16384, seed=7, mode=mode), camera=cam)
-    expected = rho / math.pi * math.pi * le * radius**2 / (radius**2 + h**2)
+    expected = alpha * rho / math.pi * math.pi * le * radius**2 / (radius**2 + h**2)
     mean = film.radiance[..., 0].mean()
     sem = math.sqrt(film.variance[..., 0].mean() / 4)
     assert abs(mean - expected) < 4 * sem + 1e-4 * expected, (mean, expected, sem)
-    assert sem < (0.002 if mode == "full" else 0.005) * expected  # the check has teeth
+    assert sem < (0.002 if mode == "full" else 0.005) / alpha * expected  # the check has teeth
 
 
 # ------------------------------------------------------------------- dielectric normal incidence

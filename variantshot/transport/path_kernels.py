@@ -182,7 +182,7 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
     nrm_z = 0.0
     coverage = 0.0
     depth_out = -1.0
-    t_primary = 0.0
+    seg_t = 0.0  # distance travelled through alpha-passed surfaces since the last vertex
     prev_pdf = 0.0
     depth = 0
     passes = 0
@@ -219,8 +219,7 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
                 passing = uniform_from_state(state, (1 << 20) + 64 * depth + min(passes, 63)) >= alpha
             if passing and passes < 1024:
                 passes += 1
-                if depth == 0:
-                    t_primary += t
+                seg_t += t
                 ox = px - ngx * eps
                 oy = py - ngy * eps
                 oz = pz - ngz * eps
@@ -260,7 +259,7 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
             nrm_y = sny
             nrm_z = snz
             coverage = 1.0
-            depth_out = t_primary + t
+            depth_out = seg_t + t
         # emission reached by the path
         if front or double_sided:
             er, eg, eb = emission(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1)
@@ -270,7 +269,8 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
                     cos_l = abs(ngx * dx + ngy * dy + ngz * dz)
                     pl = 0.0
                     if cos_l > 0.0 and area > 0.0:
-                        pl = p_emit_sel * tri_emit_prob[tri] * t * t / (area * cos_l)
+                        d_l = seg_t + t  # from the vertex that sampled the direction
+                        pl = p_emit_sel * tri_emit_prob[tri] * d_l * d_l / (area * cos_l)
                     w = power_heuristic(prev_pdf, pl)
                 lr += beta_r * er * w
                 lg += beta_g * eg * w
@@ -330,6 +330,20 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
                     if cos_l > 0.0 or (mat_table[lmat, 12] > 0.5 and cos_l < 0.0):
                         la = surface_attributes(positions, normals, uvs, colours, triangles, ltri, lb1, lb2)
                         li_r, li_g, li_b = emission(mat_table, lmat, tex_pixels, tex_table, la[6], la[7], la[8], la[9])
+                        lmode = int(mat_table[lmat, 10])
+                        if lmode != 0:
+                            # a masked-away point is not there; a blended one emits alpha x Le on average
+                            la_alpha = surface_alpha(mat_table, lmat, tex_pixels, tex_table, la[6], la[7], la[8],
+                                                     la[9], la[13])
+                            if lmode == 1:
+                                if la_alpha < mat_table[lmat, 11]:
+                                    la_alpha = 0.0
+                                else:
+                                    la_alpha = 1.0
+                            la_alpha = min(max(la_alpha, 0.0), 1.0)
+                            li_r *= la_alpha
+                            li_g *= la_alpha
+                            li_b *= la_alpha
                         pdf_light = p_sel * prob_tri * d2 / (larea * abs(cos_l))
                         ok = pdf_light > 0.0
                         # stop the shadow ray just short of the emitter
@@ -389,6 +403,7 @@ def trace_sample(positions, normals, uvs, colours, triangles, tri_material,
         ox = ox_s
         oy = oy_s
         oz = oz_s
+        seg_t = 0.0
         dx = nx_
         dy = ny_
         dz = nz_
