@@ -282,6 +282,11 @@ def test_against_embreex_and_trimesh():
         (first >= 0) & (h.tri[:20000] >= 0) & np.isclose(h.t[:20000], ref["tfar"][:20000], rtol=1e-4)
     )
     assert np.mean(same) >= 0.9999
+    # ... and the same first hit points (trimesh.ray intersects_location, first hits only)
+    loc, index_ray, _ = mesh.ray.intersects_location(o[:20000], d[:20000], multiple_hits=False)
+    ours = o[index_ray].astype(np.float64) + h.t[index_ray, None].astype(np.float64) * d[index_ray]
+    close = np.linalg.norm(ours - loc, axis=1) <= 1e-4 * 3.0  # 1e-4 of the ray length scale
+    assert len(index_ray) > 5000 and np.mean(close) >= 0.9999
 
 
 def test_thread_count_does_not_change_results():
