@@ -36,12 +36,12 @@ cols     meaning
 11       alphaCutoff
 12       doubleSided (1.0 / 0.0)
 13       index of refraction (KHR_materials_ior, default 1.5)
-14       normalTexture scale (reserved: normal maps are not applied yet)
+14       normalTexture scale
 15       KHR_materials_specular specularFactor (default 1; specularColorFactor not applied yet)
 16-23    baseColorTexture slot (sRGB-decoded atlas entry)
 24-31    metallicRoughnessTexture slot (B = metallic, G = roughness)
 32-39    emissiveTexture slot (sRGB-decoded)
-40-47    normalTexture slot (reserved)
+40-47    normalTexture slot (linear; tangent-space normal map, see path_kernels.normal_mapped)
 48-63    spare, for extensions
 =======  ================================================================================
 

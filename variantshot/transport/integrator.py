@@ -136,6 +136,7 @@ def render(
     positions = np.ascontiguousarray(scene.positions, dtype=np.float32)
     normals = np.ascontiguousarray(scene.normals, dtype=np.float32)
     uvs = np.ascontiguousarray(scene.uvs, dtype=np.float32)
+    tangents = np.ascontiguousarray(scene.tangents, dtype=np.float32)
     colours = np.ascontiguousarray(scene.colours, dtype=np.float32)
     triangles = np.ascontiguousarray(scene.triangles, dtype=np.int32)
     tri_material = np.ascontiguousarray(scene.tri_material, dtype=np.int32)
@@ -150,7 +151,7 @@ def render(
             np.int64,
         )
         path_kernels.render_rows(
-            positions, normals, uvs, colours, triangles, tri_material,
+            positions, normals, uvs, tangents, colours, triangles, tri_material,
             bvh.nodes_f, bvh.nodes_i, bvh.tris_f, bvh.tri_ids,
             mat_table, atlas.pixels, atlas.table,
             lights.punctual, lights.emit_tris, lights.emit_cdf, lights.tri_emit_prob, lights.sel_cdf,

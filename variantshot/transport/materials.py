@@ -87,9 +87,7 @@ def pack_material(material: Material, builder: AtlasBuilder, where: str) -> np.n
     _slot(row, SLOT_BASE_COLOUR, builder, material.base_colour_texture, True)
     _slot(row, SLOT_METALLIC_ROUGHNESS, builder, material.metallic_roughness_texture, False)
     _slot(row, SLOT_EMISSIVE, builder, material.emissive_texture, True)
-    row[SLOT_NORMAL] = -1  # normal maps are reserved, not applied yet
-    row[SLOT_NORMAL + 1] = 0
-    row[SLOT_NORMAL + 2 : SLOT_NORMAL + 8] = transform_matrix(None)
+    _slot(row, SLOT_NORMAL, builder, material.normal_texture, False)
     return row
 
 

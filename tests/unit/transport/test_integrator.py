@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 
@@ -130,3 +132,36 @@ def test_default_light_is_needed_only_without_any_light():
     pos, tris, mats, nrm = combine([(p, t, 0, None), (p + 1, t, 1, None)])
     lit = make_scene(pos, tris, tri_material=mats, materials=[Material(), Material(emissive_factor=(1, 1, 1))])
     assert not needs_default_light(lit)
+
+
+@pytest.mark.parametrize("axis, w, computed", [(0, 1.0, True), (1, 1.0, True), (1, 1.0, False), (1, -1.0, False)])
+def test_normal_texture_tilts_the_lambert_cosine(axis, w, computed):
+    # glTF 2.0 §3.9.3 normalTexture: tangent-space normal n = (2 texel - 1) x (scale, scale, 1)
+    # with T = TANGENT.xyz (or dp/du), B = cross(N, T) x TANGENT.w; a Lambertian quad lit by a
+    # directional light (KHR_lights_punctual, lux) then shows rho / pi x E x cos(angle between
+    # the light and n): tilting n by a towards the light at b gives cos(a - b), the wrong sign
+    # of T or B would give cos(a + b).
+    from variantshot.geometry.scene import Light
+
+    a, b, rho, lux = 0.5, 0.3, 0.8, 3.0
+    n_ts = np.zeros(3)
+    n_ts[axis], n_ts[2] = math.sin(a), math.cos(a)
+    tex = Texture(pixels=np.array([[[*(0.5 * (n_ts + 1)), 1.0]]], np.float32))
+    p, t = quad((0, 0, 0), (2, 0, 0), (0, 2, 0))  # +z; u along +x, v down the image (-y)
+    uv = np.array([[0, 1], [1, 1], [1, 0], [0, 0]], float)
+    tangents = None if computed else np.tile([1.0, 0.0, 0.0, w], (4, 1))
+    mat = Material(base_colour_factor=(rho, rho, rho, 1), metallic_factor=0.0, extensions=LAMBERT,
+                   normal_texture=TextureRef(index=0))
+    light_dir = np.zeros(3)
+    light_dir[axis], light_dir[2] = math.sin(b), math.cos(b)  # towards the light
+    scene = make_scene(p, t, uvs=uv, tangents=tangents, materials=[mat], textures=[tex],
+                       lights=[Light(name="sun", kind="directional", intensity=lux, direction=tuple(-light_dir))])
+    film = render(scene, RenderSettings(width=2, height=2, spp=4),
+                  camera=camera((0, 0, 3), (0, 0, 0), kind="orthographic", ymag=0.5))
+    texel = np.round(0.5 * (n_ts + 1) * 1.0, 7)  # float32 round trip of the texel
+    n = 2 * texel - 1
+    n /= np.linalg.norm(n)
+    if w < 0:
+        n[1] = -n[1]
+    expected = rho / math.pi * lux * float(np.dot(n, light_dir))
+    np.testing.assert_allclose(film.radiance, expected, rtol=1e-5)
