@@ -14,7 +14,8 @@ from typing import NamedTuple
 
 import numpy as np
 
-# Split parameters of the binned SAH build (see bvh_kernels.build_binary).
+# Split parameters of the binned SAH build (see bvh_kernels.build_binary).  A leaf of up to 4
+# triangles is one vector test (a pack); the leaf encoding allows at most 7.
 MAX_LEAF = 4
 N_BINS = 32
 TRAVERSAL_COST = 3.0  # one 8-wide node visit, in triangle tests (measured best of 0.5..5)
