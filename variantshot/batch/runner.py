@@ -261,7 +261,7 @@ def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int =
     Camera rays through the centres of ``step`` x ``step`` pixel blocks find the sweep behind
     every pixel (the product left out); :func:`~variantshot.geometry.rig.direct_light_ratio`
     gives the share of the rig's direct light the product lets through there; the ratio is
-    upsampled bilinearly to the image, box-blurred over 0.5 % of the longer side (at least
+    upsampled bilinearly to the image, box-blurred over 1 % of the longer side (at least
     3 x 3 pixels) to hide the jitter, and snapped
     with the rig's ``white_boost_ev`` (:func:`~variantshot.imaging.background.snap_shadow`).  Pixels that see a soft box or the
     environment are unshadowed.
@@ -300,7 +300,7 @@ def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int =
         full = np.asarray(im, np.float64)
     else:
         full = low
-    full = box_blur(full, max(1, int(round(0.005 * max(width, height)))))
+    full = box_blur(full, max(1, int(round(0.01 * max(width, height)))))
     return snap_shadow(full, rig.spec.white_boost_ev)
 
 
