@@ -36,6 +36,9 @@ def _worker_init(threads: int) -> None:
     from .. import _jit
 
     _jit.set_threads(threads)
+    from .runner import warmup
+
+    warmup()
 
 
 class LocalExecutor:

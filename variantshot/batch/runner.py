@@ -691,6 +691,8 @@ def render_batch(
                 finish(_entry(info, background=bgv, key=s.key, status="failed", error=msg))
 
         executor = executor or LocalExecutor(workers, threads=threads)
+        if tasks and isinstance(executor, LocalExecutor) and executor.workers == 1:
+            warmup()  # compile / cache-load the kernels once, outside the shot timings
         from .._atomic import atomic_write
 
         for result in executor.map(render_shot, tasks):
