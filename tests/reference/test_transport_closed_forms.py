@@ -66,7 +66,9 @@ def test_white_furnace_rough_dielectric_never_exceeds_one(roughness):
                   env=make_environment(1.0), camera=camera((0, 0, 5), (0, 0, 0), yfov_rad=0.3))
     mean, sem = _covered_mean(film)
     assert mean[0] <= 1.0 + 3 * sem[0]
-    assert mean[0] > 0.85  # and it does not lose much either (glTF fresnel_mix)
+    # and it does not lose much either: fresnel_mix keeps (1 - F) of the white diffuse, F <= 0.09
+    # averaged over the hemisphere (REFERENCES §6(f), 0.0918 for n = 1.5); a loose bound
+    assert mean[0] > 0.85
 
 
 @pytest.mark.parametrize("mu, expected, tol", [(1.0, 1.0 - math.log(2.0), 0.003), (0.5, 0.451, 0.006),
