@@ -25,7 +25,8 @@ Alpha: MASK passes rays where alpha < cutoff; BLEND passes a ray with probabilit
 Sample dimensions: 0-1 filter, 2-3 lens (both Owen-scrambled Sobol' pairs), then per bounce
 ``b`` the hashed block 4 + 16 b:
 +0 light entry, +1 triangle, +2..3 point on the light, +4 lobe, +5..6 BSDF direction,
-+7 roulette; alpha pass-through uses 1 << 20 + 64 b + k.
++7 roulette; alpha pass-through uses 1 << 20 + 64 b + k.  At the first vertex (b = 0) the
+light point and the BSDF direction come from Sobol' pairs 2 and 3 instead of +2..3, +5..6.
 
 Packed integer options ``opts`` (int64): 0 width, 1 height, 2 first sample, 3 end sample,
 4 seed, 5 max depth, 6 mode (0 full, 1 baseline), 7 has environment, 8 has non-opaque
@@ -360,6 +361,16 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         oy_s = py + ngy * eps
         oz_s = pz + ngz * eps
         dim = 4 + 16 * depth
+        # the light point and the BSDF direction of the first vertex are stratified too
+        # (Sobol' pairs 2 and 3); later vertices use the hashed dimensions
+        if depth == 0:
+            ulp0, ulp1 = sobol_pair(pixel, sample_index, 2, opts[4])
+            ub0, ub1 = sobol_pair(pixel, sample_index, 3, opts[4])
+        else:
+            ulp0 = uniform_from_state(state, dim + 2)
+            ulp1 = uniform_from_state(state, dim + 3)
+            ub0 = uniform_from_state(state, dim + 5)
+            ub1 = uniform_from_state(state, dim + 6)
         # next-event estimation
         if not baseline and sel_total > 0.0:
             entry = sample_discrete(sel_cdf, uniform_from_state(state, dim))
@@ -377,13 +388,13 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             if entry == 0:
                 wix, wiy, wiz, pdf_env, li_r, li_g, li_b = env_sample(
                     env_pixels, env_cdf_rows, env_cdf_cols, env_params,
-                    uniform_from_state(state, dim + 2), uniform_from_state(state, dim + 3))
+                    ulp0, ulp1)
                 pdf_light = p_sel * pdf_env
                 ok = pdf_light > 0.0
             elif entry == 1:
                 ltri, lb1, lb2, qx, qy, qz, prob_tri, larea = sample_emissive_point(
                     positions, triangles, emit_tris, emit_cdf, uniform_from_state(state, dim + 1),
-                    uniform_from_state(state, dim + 2), uniform_from_state(state, dim + 3))
+                    ulp0, ulp1)
                 lmat = tri_material[ltri]
                 lnx, lny, lnz = triangle_geometry(positions, triangles, ltri)[1:]
                 # the shadow ray starts at the offset point, so measure from there
@@ -445,8 +456,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                         lb += beta_b * fb * li_b * k
         # continue the path by sampling the BSDF
         ilx, ily, ilz, fr, fg, fb, pdf = sample_f(bsdf, wlx, wly, wlz, uniform_from_state(state, dim + 4),
-                                                  uniform_from_state(state, dim + 5),
-                                                  uniform_from_state(state, dim + 6))
+                                                  ub0, ub1)
         if pdf <= 0.0:
             break
         nx_ = ilx * tx + ily * bx + ilz * snx

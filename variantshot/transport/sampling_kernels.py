@@ -7,13 +7,14 @@ seed gives the same image bit for bit on any thread count.  The hash is Chris We
 int64 arithmetic and masked to 32 bits (int64 multiplication wraps modulo 2**64, so the low 32
 bits are exact).
 
-The first dimensions -- the pixel filter (0-1) and the lens (2-3) -- are low-discrepancy
-instead: two independently shuffled and Owen-scrambled 2-D Sobol' sequences per pixel
+The first dimensions -- the pixel filter (pair 0), the lens (pair 1), and at the first surface
+vertex the point on the light (pair 2) and the BSDF direction (pair 3) -- are low-discrepancy
+instead: independently shuffled and Owen-scrambled 2-D Sobol' sequences per pixel
 (B. Burley, "Practical Hash-based Owen Scrambling", JCGT 9(4), 2020: nested uniform scrambling
 by a hashed Laine-Karras permutation of the bit-reversed value, and the same scramble applied
 to the sample index to decorrelate pixels).  Any 2**k consecutive samples of a pixel starting
-at a multiple of 2**k then form a (0, k, 2)-net, which stratifies anti-aliasing and depth of
-field.  The scramble seeds are hashes of (pixel, pair, seed), so this too is thread-invariant.
+at a multiple of 2**k then form a (0, k, 2)-net, which stratifies anti-aliasing, depth of
+field and direct lighting.  The scramble seeds are hashes of (pixel, pair, seed), so this too is thread-invariant.
 
 Dimension layout used by the path kernels (documented here because it is part of the
 reproducibility contract): 0-1 the pixel filter, 2-3 the lens, then 16 dimensions per bounce
