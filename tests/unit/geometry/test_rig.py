@@ -204,3 +204,49 @@ def test_box_between_lens_and_product_is_left_out():
     for corners in seen.box_corners.values():
         assert not rigmod._quad_blocks(corners, m[:3, 3], seen.centre[None])
     assert rigmod._quad_blocks(full.box_corners["overhead"], m[:3, 3], full.centre[None])
+
+
+def _overhead_rig(env=0.0):
+    data = {
+        "environment": env,
+        "softbox": [{"name": "k", "role": "key", "azimuth_deg": 0, "elevation_deg": 90, "distance": 4, "width": 2,
+                     "height": 2}],
+    }
+    return build_rig(parse_rig(data), BOUNDS)
+
+
+def test_direct_light_ratio_half_occluded_by_symmetry():
+    from variantshot.geometry.bvh import build_bvh
+    from variantshot.geometry.rig import direct_light_ratio
+
+    r = _overhead_rig()
+    c = r.box_corners["k"].mean(axis=0)
+    floor = np.array([[c[0], r.floor_y, c[2]]])
+    up = np.array([[0.0, 1.0, 0.0]])
+    y_mid = 0.5 * (r.floor_y + c[1])
+    big = 100.0
+    # an occluder plane covering exactly the half x > c.x of everything above the point
+    half = np.array([[c[0], y_mid, c[2] - big], [c[0] + big, y_mid, c[2] - big], [c[0] + big, y_mid, c[2] + big],
+                     [c[0], y_mid, c[2] + big]], np.float32)
+    tris = np.array([[0, 1, 2], [0, 2, 3]], np.int32)
+    ratio = direct_light_ratio(r, floor, up, build_bvh(half, tris), box_samples=8)
+    # the box and the point are mirror-symmetric about x = c.x: half the light is blocked
+    assert ratio[0] == pytest.approx(0.5, abs=0.03)
+    # an occluder far to the side blocks nothing: exactly 1
+    aside = half + np.array([50.0, 0.0, 0.0], np.float32)
+    assert direct_light_ratio(r, floor, up, build_bvh(aside, tris))[0] == 1.0
+
+
+def test_direct_light_ratio_environment_only():
+    from variantshot.geometry.bvh import build_bvh
+    from variantshot.geometry.rig import direct_light_ratio
+
+    r = _overhead_rig(env=0.5)
+    c = r.box_corners["k"].mean(axis=0)
+    floor = np.array([[c[0], r.floor_y, c[2]]])
+    up = np.array([[0.0, 1.0, 0.0]])
+    # a roof over everything blocks the box and the whole sky: nothing arrives
+    y = 0.5 * (r.floor_y + c[1])
+    roof = np.array([[-1e3, y, -1e3], [1e3, y, -1e3], [1e3, y, 1e3], [-1e3, y, 1e3]], np.float32)
+    tris = np.array([[0, 1, 2], [0, 2, 3]], np.int32)
+    assert direct_light_ratio(r, floor, up, build_bvh(roof, tris))[0] == 0.0
