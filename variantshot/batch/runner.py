@@ -559,7 +559,8 @@ def render_batch(
     sheet_formats : tuple of str
         Contact sheets built at the end (``()``: none).
     progress : callable, optional
-        ``progress(done, total, label)``: shots finished, shots to render, the shot just done.
+        ``progress(done, total, label)``: shots finished, shots to render, the shot being rendered
+        (the next in line; the last one finished once all are done).
     on_shot : callable, optional
         ``on_shot(entry)`` with each finished shot's manifest entry (rendered or failed).
 
@@ -634,23 +635,26 @@ def render_batch(
         report.planned = len(shots) + len(failed_shots)
         total = len(todo) + len(failed_shots)
         done = 0
+        pending = [s.id for s in todo]  # in the order a local executor renders them
 
         def finish(entry):
             nonlocal done
             manifest["shots"][entry["id"]] = entry
             save_manifest(out, manifest)
             done += 1
+            if entry["id"] in pending:
+                pending.remove(entry["id"])
             if on_shot is not None:
                 on_shot(entry)
             if progress is not None:
-                progress(done, total, entry["id"])
+                progress(done, total, pending[0] if pending else entry["id"])
 
         for info, v, msg, key in failed_shots:
             bgv = (v.row.get("background") or output.background)
             report.failed.append((info["id"], msg))
             finish(_entry(info, background=bgv, key=key, status="failed", error=msg))
         if progress is not None and total:
-            progress(done, total, None)
+            progress(done, total, pending[0] if pending else None)
 
         rig_specs: dict[str, RigSpec] = {}
 
