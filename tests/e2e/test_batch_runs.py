@@ -229,3 +229,21 @@ def test_a_catalog_column_picks_formats_and_background_per_row(tiny_draft, tmp_p
     assert shots["T-C--front"]["status"] == "failed"
     assert "column formats" in shots["T-C--front"]["error"] or "formats" in shots["T-C--front"]["error"]
     assert r.exit_code == 1
+
+
+def test_backdrop_background_is_the_rendered_sweep(tiny_draft, monkeypatch, catalog, tmp_path, repo_dir):
+    from PIL import Image
+
+    monkeypatch.setitem(quality_mod.QUALITY_PRESETS, "draft", TINY.replace(long_side_px=64, spp=8))
+    out = tmp_path / "out"
+    r = _render(catalog, out, repo_dir, "--only", "T-BTL-SAGE*", "--background", "backdrop")
+    assert r.exit_code in (0, 1), r.output
+    e = load_manifest(out)["shots"]["T-BTL-SAGE--front"]
+    assert e["background"] == "backdrop"
+    rgb = np.asarray(Image.open(out / e["image"]).convert("RGB")).astype(int)
+    corners = np.array([rgb[1, 1], rgb[1, -2], rgb[-2, 1], rgb[-2, -2]])
+    # the lit sweep (albedo 0.8, exposed like the product) is a light grey, not paper white
+    assert np.all((corners > 120) & (corners < 255))
+    # QA frames the product by its coverage, not by the sweep that fills the frame
+    fill = next(c for c in e["qa"]["checks"] if c["name"] == "fill")
+    assert 0.6 < fill["value"] < 0.95

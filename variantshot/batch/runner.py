@@ -13,9 +13,9 @@ One shot, step by step
 ----------------------
 1. load the variant's glTF scene; the camera is the scene's camera node named after the angle;
 2. build the studio rig around the product's bounds, turned to face that camera;
-3. render product + rig (the shot); for ``white`` / ``transparent`` also the product alone at
-   one bounce (its coverage α, since in the studio every camera ray hits something) and the
-   shadow it casts on the sweep (:func:`shadow_map`, ray cast from the rig's lights);
+3. render product + rig (the shot), the product alone at one bounce (its coverage α, since in
+   the studio every camera ray hits something), and for ``white`` / ``transparent`` the shadow
+   it casts on the sweep (:func:`shadow_map`, ray cast from the rig's lights);
 4. composite the background (:mod:`variantshot.imaging.background`) with the rig's calibrated
    exposure (:func:`calibrate_exposure`), encode every format and size;
 5. run QA on the primary image (``review.qa.run_qa``), with the variant colour's swatch rendered
@@ -349,19 +349,20 @@ def _render_shot(task: ShotTask) -> ShotResult:
     t_load = time.perf_counter()
     product_bvh = build_bvh(product.positions, product.triangles)
     film = render(shot_scene, settings, env=env, camera=camera)
+    # the product's coverage: compositing needs it, and QA frames the product by it on any background
+    cov_settings = dataclasses.replace(settings, spp=max(8, min(settings.spp // 4, 32)), max_depth=1)
+    coverage = render(product, cov_settings, env=None, camera=camera, bvh=product_bvh).alpha
     if bg in ("white", "transparent"):
-        cov_settings = dataclasses.replace(settings, spp=max(8, min(settings.spp // 4, 32)), max_depth=1)
-        coverage = render(product, cov_settings, env=None, camera=camera, bvh=product_bvh).alpha
         step = 2 if max(settings.width, settings.height) >= 256 else 1
         shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, step=step, seed=task.quality.seed)
     else:
-        coverage, shadow = None, None
+        shadow = None
     t_render = time.perf_counter()
     radiance = film.radiance
     if task.quality.denoise:
         radiance = _maybe_denoise(film, task.threads)
     gain = 2.0 ** task.exposure_ev
-    rgb, alpha = composite(bg, radiance, coverage if coverage is not None else film.alpha, gain, shadow)
+    rgb, alpha = composite(bg, radiance, coverage, gain, shadow)
 
     images = []
     for rel, fmt, size in image_paths(task.shot_id, task.output, task.quality.long_side_px):
@@ -371,7 +372,7 @@ def _render_shot(task: ShotTask) -> ShotResult:
         images.append(ImageOut(rel, fmt, src_rgb.shape[1], src_rgb.shape[0], data))
     t_encode = time.perf_counter()
 
-    qa = _run_qa(task, images[0], coverage if coverage is not None else None, film)
+    qa = _run_qa(task, images[0], coverage, film)
     metrics = {
         "load_s": round(t_load - t0, 4),
         "render_s": round(t_render - t_load, 4),
