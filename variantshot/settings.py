@@ -48,6 +48,20 @@ class RenderSettings:
         ``"baseline"``: BSDF sampling only (plain path tracing), for comparisons.
     wave_spp : int
         Samples per pixel per pass; ``progress`` is called between passes.
+    noise_target : float or None
+        Adaptive sampling: after ``adaptive_min_spp`` samples, and after every pass from then
+        on, each ``noise_tile_px`` square tile whose relative standard error of the luminance
+        (``sqrt(mean var_Y) / max(mean Y, noise_floor x image mean Y)``, from the film's own
+        variance) is at or below this target stops taking samples; ``spp`` becomes the cap.
+        None: every pixel takes ``spp`` samples (fixed-spp render).
+    adaptive_min_spp : int
+        Samples every pixel takes before the first stopping test.
+    noise_tile_px : int
+        Side of the tiles the stopping test pools (8: 64 pixels, so the variance estimate of
+        a tile is steady after a few samples).
+    noise_floor : float
+        Darkest luminance the relative error is taken against, as a fraction of the image's
+        mean luminance (keeps near-black tiles from sampling for ever).
     """
 
     width: int = 512
@@ -61,9 +75,13 @@ class RenderSettings:
     focus_distance_m: float | None = None
     mode: str = "full"
     wave_spp: int = 8
+    noise_target: float | None = None
+    adaptive_min_spp: int = 16
+    noise_tile_px: int = 8
+    noise_floor: float = 0.05
 
     def __post_init__(self) -> None:
-        for name in ("width", "height", "spp", "max_depth", "wave_spp"):
+        for name in ("width", "height", "spp", "max_depth", "wave_spp", "noise_tile_px"):
             value = getattr(self, name)
             if not isinstance(value, int) or isinstance(value, bool) or value < 1:
                 raise RenderError(f"RenderSettings.{name}: {value!r} is not accepted (a whole number >= 1)")
@@ -71,6 +89,17 @@ class RenderSettings:
             raise RenderError(f"RenderSettings.seed: {self.seed!r} is not accepted (a whole number 0 .. 2**32-1)")
         if self.threads is not None and (not isinstance(self.threads, int) or self.threads < 1):
             raise RenderError(f"RenderSettings.threads: {self.threads!r} is not accepted (None or >= 1)")
+        if self.noise_target is not None and not (isinstance(self.noise_target, (int, float))
+                                                  and not isinstance(self.noise_target, bool)
+                                                  and self.noise_target > 0):
+            raise RenderError(f"RenderSettings.noise_target: {self.noise_target!r} is not accepted "
+                              "(a number > 0, e.g. 0.05, or None for a fixed spp)")
+        if (not isinstance(self.adaptive_min_spp, int) or isinstance(self.adaptive_min_spp, bool)
+                or self.adaptive_min_spp < 2):
+            raise RenderError(f"RenderSettings.adaptive_min_spp: {self.adaptive_min_spp!r} is not accepted "
+                              "(a whole number >= 2)")
+        if not (isinstance(self.noise_floor, (int, float)) and 0 <= self.noise_floor):
+            raise RenderError(f"RenderSettings.noise_floor: {self.noise_floor!r} is not accepted (a number >= 0)")
         if self.mode not in MODES:
             raise RenderError(f"RenderSettings.mode: {self.mode!r} is not accepted ({', '.join(MODES)})")
         if self.aperture_f_number is not None and not self.aperture_f_number > 0:

@@ -27,7 +27,9 @@ class FilmSums:
     depth, depth_n : (H, W)
         Sum of first-hit distances and the number of samples that hit.
     n : int
-        Samples per pixel added so far.
+        Samples per pixel added so far (the largest count when pixels differ).
+    n_pixel : (H, W) float64 or None
+        Samples added to each pixel, when they differ (adaptive sampling); None: ``n`` everywhere.
     """
 
     rgb: np.ndarray
@@ -38,6 +40,7 @@ class FilmSums:
     depth: np.ndarray
     depth_n: np.ndarray
     n: int = 0
+    n_pixel: np.ndarray | None = None
 
     @classmethod
     def zeros(cls, width: int, height: int) -> "FilmSums":
@@ -65,7 +68,11 @@ class Film:
     variance : (H, W, 3) float64 ndarray
         Per-pixel variance of the mean radiance (sample variance / spp); inf when spp = 1.
     spp : int
-        Samples per pixel.
+        Samples per pixel: the largest count over the pixels (with adaptive sampling converged
+        pixels stop earlier; see ``spp_map``).
+    spp_map : (H, W) int32 ndarray or None
+        Samples taken by each pixel when the render was adaptive (``RenderSettings.noise_target``);
+        None for a fixed-spp render (every pixel has ``spp``).
     """
 
     radiance: np.ndarray
@@ -75,6 +82,12 @@ class Film:
     depth: np.ndarray
     variance: np.ndarray
     spp: int
+    spp_map: np.ndarray | None = None
+
+    @property
+    def mean_spp(self) -> float:
+        """Average samples per pixel (``spp`` for a fixed-spp render)."""
+        return float(self.spp) if self.spp_map is None else float(np.mean(self.spp_map))
 
     @property
     def width(self) -> int:
@@ -96,10 +109,34 @@ def resolve_film(sums: FilmSums) -> Film:
     normal = np.zeros((h, w, 3))
     alpha = np.zeros((h, w))
     depth = np.zeros((h, w))
-    n = max(int(sums.n), 1)
+    if sums.n_pixel is not None:
+        n_pixel = np.ascontiguousarray(sums.n_pixel, dtype=np.float64)
+    else:
+        n_pixel = np.full((h, w), float(sums.n))
     film_kernels.resolve(
-        n, sums.rgb, sums.rgb_sq, sums.albedo, sums.normal, sums.alpha, sums.depth, sums.depth_n,
+        n_pixel, sums.rgb, sums.rgb_sq, sums.albedo, sums.normal, sums.alpha, sums.depth, sums.depth_n,
         radiance, variance, albedo, normal, alpha, depth,
     )
     return Film(radiance=radiance, albedo=albedo, normal=normal, alpha=alpha, depth=depth, variance=variance,
-                spp=int(sums.n))
+                spp=int(sums.n), spp_map=None if sums.n_pixel is None else sums.n_pixel.astype(np.int32))
+
+
+def tile_relative_error(sums: FilmSums, tile_px: int, floor: float) -> np.ndarray:
+    """Relative standard error of the luminance of each ``tile_px`` square tile of the film.
+
+    ``sqrt(mean var_Y) / max(mean Y, floor)`` over the tile's pixels, with ``var_Y`` the
+    variance of a pixel's mean luminance (see ``film_kernels.tile_relative_error``).  Needs at
+    least 2 samples in every pixel.
+
+    Returns
+    -------
+    (ceil(H / tile_px), ceil(W / tile_px)) float64 ndarray
+    """
+    from . import film_kernels
+
+    h, w = sums.alpha.shape
+    n_pixel = sums.n_pixel if sums.n_pixel is not None else np.full((h, w), float(sums.n))
+    out = np.zeros((-(-h // tile_px), -(-w // tile_px)))
+    film_kernels.tile_relative_error(sums.rgb, sums.rgb_sq, np.ascontiguousarray(n_pixel, dtype=np.float64),
+                                     int(tile_px), float(floor), out)
+    return out

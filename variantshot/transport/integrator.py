@@ -3,7 +3,15 @@
 This module is the only Python caller of ``path_kernels``.  It builds the BVH, the material
 table and texture atlas, the light set and the packed camera, then runs the kernel in passes
 ("waves") of ``settings.wave_spp`` samples per pixel, calling ``progress(done, total)`` after
-each, and resolves the film.  See ``path_kernels`` for the estimator.
+each, and resolves the film.
+
+Adaptive sampling (``settings.noise_target``): after ``adaptive_min_spp`` samples and after
+every wave from then on, every 8 x 8 tile whose relative standard error of the luminance
+(from the film's own per-pixel variance) is at or below the target stops; the row kernel
+skips its pixels.  Decisions depend only on the film sums, which are bit-identical on any
+thread count, so the image is too.  Stopping on the estimate's own variance biases a pixel
+slightly (tiles whose variance came out low by chance stop first); pooling 64 pixels keeps
+that far below the noise (``tests/unit/transport/test_adaptive.py``).  See ``path_kernels`` for the estimator.
 """
 
 from __future__ import annotations
@@ -66,6 +74,33 @@ def ray_epsilon(scene: Scene) -> float:
     return max(2e-6 * extent, 1e-9) + 8e-6 * big
 
 
+def _row_order(rows: np.ndarray) -> np.ndarray:
+    """``rows`` in a fixed scrambled order (golden-ratio sequence), so the contiguous chunks
+    numba's static prange schedule gives each thread mix product and backdrop rows."""
+    if rows.size < 2:
+        return np.ascontiguousarray(rows, dtype=np.int32)
+    key = (np.arange(rows.size) * 0.6180339887498949) % 1.0
+    return np.ascontiguousarray(rows[np.argsort(key, kind="stable")], dtype=np.int32)
+
+
+def _still_noisy(sums, active: np.ndarray, settings: RenderSettings) -> np.ndarray:
+    """Pixel mask (H, W) uint8 of the tiles that stay above ``settings.noise_target``.
+
+    The test uses only the film sums (thread-invariant), so the stopping pattern, and with it
+    the image, is the same on any thread count.  A stopped tile never restarts.
+    """
+    from ..imaging.film import tile_relative_error
+
+    h, w = active.shape
+    tile = settings.noise_tile_px
+    n = np.maximum(sums.n_pixel, 1.0)
+    lum = (sums.rgb / n[..., None]) @ np.array([0.2126, 0.7152, 0.0722])
+    floor = max(settings.noise_floor * float(np.mean(lum)), 1e-12)
+    err = tile_relative_error(sums, tile, floor)
+    noisy = np.repeat(np.repeat(err > settings.noise_target, tile, axis=0), tile, axis=1)[:h, :w]
+    return (active.astype(bool) & noisy).astype(np.uint8)
+
+
 def render(
     scene: Scene,
     settings: RenderSettings,
@@ -88,7 +123,9 @@ def render(
     camera : Camera, optional
         Overrides ``settings.camera_name`` and the scene's cameras.
     progress : callable, optional
-        ``progress(done_spp, total_spp)``, called after each pass.
+        ``progress(done_spp, total_spp)``, called after each pass (with adaptive sampling
+        ``done_spp`` is the count of the pixels still sampling; the last call has
+        ``done_spp == total_spp``).
     bvh : BVH, optional
         A prebuilt ``build_bvh(scene.positions, scene.triangles)`` to reuse.
 
@@ -96,6 +133,8 @@ def render(
     -------
     Film
         Radiance (linear, scene-referred) with albedo, normal, alpha, depth and variance passes.
+        With ``settings.noise_target`` (adaptive sampling) ``film.spp_map`` holds each pixel's
+        sample count and ``film.spp`` the largest.
 
     Raises
     ------
@@ -142,9 +181,16 @@ def render(
     tri_material = np.ascontiguousarray(scene.tri_material, dtype=np.int32)
     fopts = np.array([eps, FILTER_RADIUS_PX], np.float64)
     total = settings.spp
+    adaptive = settings.noise_target is not None and total > settings.adaptive_min_spp
+    active = np.ones((height, width), np.uint8)
+    rows = _row_order(np.arange(height, dtype=np.int32))
+    if adaptive:
+        sums.n_pixel = np.zeros((height, width), np.float64)
     done = 0
     while done < total:
         end = min(total, done + settings.wave_spp)
+        if adaptive and done < settings.adaptive_min_spp:
+            end = min(end, settings.adaptive_min_spp)
         opts = np.array(
             [width, height, done, end, settings.seed, settings.max_depth,
              1 if settings.mode == "baseline" else 0, 1 if has_env else 0, 1 if has_alpha else 0],
@@ -158,11 +204,22 @@ def render(
             env_pixels, env_rows, env_cols, env_params,
             cam, opts, fopts,
             sums.rgb, sums.rgb_sq, sums.albedo, sums.normal, sums.alpha, sums.depth, sums.depth_n,
+            rows, active,
         )
+        if adaptive:
+            sums.n_pixel += float(end - done) * active
         done = end
         sums.n = done
+        if adaptive and done >= settings.adaptive_min_spp and done < total:
+            active = _still_noisy(sums, active, settings)
+            rows = _row_order(np.flatnonzero(active.any(axis=1)).astype(np.int32))
+            if rows.size == 0:
+                break
         if progress is not None:
             progress(done, total)
+    if done < total and progress is not None:
+        progress(total, total)  # every tile reached the noise target early
     film = resolve_film(sums)
-    log.debug("rendered %dx%d at %d spp in %.2f s", width, height, total, time.perf_counter() - started)
+    log.debug("rendered %dx%d at %d spp (mean %.1f) in %.2f s", width, height, film.spp, film.mean_spp,
+              time.perf_counter() - started)
     return film

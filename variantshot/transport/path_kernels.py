@@ -501,20 +501,25 @@ def render_rows(positions, normals, uvs, tangents, colours, triangles, tri_mater
                 punctual, emit_tris, emit_cdf, tri_emit_prob, sel_cdf,
                 env_pixels, env_cdf_rows, env_cdf_cols, env_params,
                 cam, opts, fopts,
-                sum_rgb, sum_sq, sum_albedo, sum_normal, sum_alpha, sum_depth, n_depth):
-    """Add samples ``opts[2] .. opts[3]-1`` of every pixel to the film sums.
+                sum_rgb, sum_sq, sum_albedo, sum_normal, sum_alpha, sum_depth, n_depth,
+                rows, active):
+    """Add samples ``opts[2] .. opts[3]-1`` of the active pixels to the film sums.
 
-    Sums are (H, W, 3) / (H, W) float64, updated in place; iteration ``y`` (prange over rows)
-    writes only row ``y``, samples in increasing order, so the result does not depend on the
-    thread count.
+    Sums are (H, W, 3) / (H, W) float64, updated in place.  ``rows`` (R,) int32 lists the
+    image rows to render (each at most once, in any order: the caller shuffles them so the
+    static prange chunks get similar work); ``active`` (H, W) uint8 is 1 for pixels that still
+    take samples (adaptive sampling), 0 for converged ones.  Iteration ``i`` writes only row
+    ``rows[i]``, samples in increasing order, so the result does not depend on the thread count.
     """
     width = opts[0]
-    height = opts[1]
     s0 = opts[2]
     s1 = opts[3]
     seed = opts[4]
-    for y in prange(height):
+    for i in prange(rows.shape[0]):
+        y = rows[i]
         for x in range(width):
+            if active[y, x] == 0:
+                continue
             pixel = y * width + x
             for s in range(s0, s1):
                 state = sample_state(pixel, s, seed)
