@@ -50,7 +50,15 @@ class Quality:
         Samples per pixel of the shot render (the product-free render for the shadow catcher
         uses the same count and seed, so their noise is correlated).
     noise_target : float
-        Relative standard error the preset aims at (reported by QA).
+        Relative standard error of the raw film (before denoising) the preset aims at.  With
+        ``adaptive`` it is the render's stopping target (``RenderSettings.noise_target``: 8 x 8
+        tiles stop once their luminance's relative standard error is at or below it, and
+        ``spp`` is only the cap); QA's ``noise`` check measures the same film against the same
+        number, so a shot that converged passes and one that hit the cap warns.
+    adaptive : bool
+        Adaptive sampling (see ``noise_target``); False: every pixel takes ``spp`` samples.
+    min_spp : int
+        Samples every pixel takes before the first stopping test (adaptive only).
     denoise : bool
         Run the denoiser when one is available.
     max_depth : int
@@ -67,6 +75,8 @@ class Quality:
     max_depth: int = 8
     aspect_ratio: float = 1.0
     seed: int = 0
+    adaptive: bool = False
+    min_spp: int = 16
 
     @property
     def width(self) -> int:

@@ -136,6 +136,8 @@ def _render_settings(quality: Quality, threads=None, **changes):
 
     kw = dict(width=quality.width, height=quality.height, spp=quality.spp, seed=quality.seed,
               max_depth=quality.max_depth, threads=threads)
+    if quality.adaptive:  # the preset's noise target stops converged tiles; spp is the cap
+        kw.update(noise_target=quality.noise_target, adaptive_min_spp=quality.min_spp)
     kw.update(changes)
     return RenderSettings(**kw)
 
@@ -350,7 +352,8 @@ def _render_shot(task: ShotTask) -> ShotResult:
     product_bvh = build_bvh(product.positions, product.triangles)
     film = render(shot_scene, settings, env=env, camera=camera)
     # the product's coverage: compositing needs it, and QA frames the product by it on any background
-    cov_settings = dataclasses.replace(settings, spp=max(8, min(settings.spp // 4, 32)), max_depth=1)
+    cov_settings = dataclasses.replace(settings, spp=max(8, min(settings.spp // 4, 32)), max_depth=1,
+                                       noise_target=None)  # coverage: every pixel, fixed spp
     coverage = render(product, cov_settings, env=None, camera=camera, bvh=product_bvh).alpha
     if bg in ("white", "transparent"):
         step = 2 if max(settings.width, settings.height) >= 256 else 1
@@ -378,6 +381,7 @@ def _render_shot(task: ShotTask) -> ShotResult:
         "render_s": round(t_render - t_load, 4),
         "encode_s": round(t_encode - t_render, 4),
         "spp": int(settings.spp),
+        "mean_spp": round(film.mean_spp, 2),
         "width": int(settings.width),
         "height": int(settings.height),
         "exposure_ev": round(float(task.exposure_ev), 4),

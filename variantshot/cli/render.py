@@ -27,7 +27,7 @@ def _summary(report, out: Path) -> list[str]:
 def run_batch(catalog: Path, out: Path, *, quality: str, only, force: bool, workers: int, cluster: str | None,
               rig: str | None, background: str | None, formats: str, sizes: str, key_to_fill: float | None,
               rotation: float | None, quiet: bool, as_json: bool, templates: Path | None,
-              sheet_formats=("png",)) -> None:
+              sheet_formats=("png",), denoise: bool = True) -> None:
     """Shared by ``render`` and ``demo``: build the options, run the batch, print, exit."""
     _console.setup_logging(quiet=quiet or as_json)
     with _console.guarded():
@@ -36,6 +36,10 @@ def run_batch(catalog: Path, out: Path, *, quality: str, only, force: bool, work
         from ..batch.runner import render_batch
 
         q = quality_preset(quality)
+        if not denoise:
+            import dataclasses
+
+            q = dataclasses.replace(q, denoise=False)
         output = OutputSpec(formats=parse_formats(formats), sizes=parse_sizes(sizes) if sizes else ())
         if background is not None:
             output = output.replace(background=background)
@@ -79,6 +83,7 @@ def render(
     key_to_fill: float = typer.Option(None, "--key-to-fill", help="Override every rig's key-to-fill ratio "
                                       "(key illuminance / fill illuminance)."),
     rotation: float = typer.Option(None, "--rig-rotation", help="Turn every rig about the vertical (degrees)."),
+    no_denoise: bool = typer.Option(False, "--no-denoise", help="Keep the raw path-traced film (no denoiser)."),
     quiet: bool = typer.Option(False, "--quiet", help="No progress bar; only failures on stderr."),
     as_json: bool = typer.Option(False, "--json", help="One JSON object per finished shot on stdout."),
     templates: Path = typer.Option(None, "--templates", help="Templates folder (default: next to the catalog, "
@@ -95,4 +100,4 @@ def render(
     """
     run_batch(catalog, out, quality=quality, only=only, force=force, workers=workers, cluster=cluster, rig=rig,
               background=background, formats=formats, sizes=sizes, key_to_fill=key_to_fill, rotation=rotation,
-              quiet=quiet, as_json=as_json, templates=templates)
+              quiet=quiet, as_json=as_json, templates=templates, denoise=not no_denoise)

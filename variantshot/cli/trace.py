@@ -53,6 +53,12 @@ def trace(
     focus_distance: float = typer.Option(None, "--focus-distance", min=0.0, help="Distance in focus, metres "
                                          "(default: the scene's centre)."),
     bit_depth: int = typer.Option(8, "--bit-depth", help="PNG bit depth: 8 or 16."),
+    noise_target: float = typer.Option(None, "--noise-target", min=0.0, help="Adaptive sampling: 8x8 tiles stop "
+                                       "once their relative standard error is at or below this (e.g. 0.05); "
+                                       "--spp is then the cap."),
+    no_denoise: bool = typer.Option(False, "--no-denoise", help="Write the raw film for .png/.jpg/.webp "
+                                    "(by default they are denoised when the denoiser is installed; .pfm/.npy "
+                                    "always hold the raw film)."),
     quiet: bool = typer.Option(False, "--quiet", "-q", help="No progress bar or summary."),
 ) -> None:
     """Render one glTF scene to an image with the path tracer.
@@ -60,7 +66,8 @@ def trace(
     The output suffix picks the format: .png (8 or 16 bit), .jpg and .webp are display-referred
     sRGB with an embedded sRGB profile (after --exposure and --tone); .pfm and .npy hold the
     linear, scene-referred radiance untouched. A scene without lights and without --env is lit
-    by a neutral uniform environment of radiance 1 (and a note says so).
+    by a neutral uniform environment of radiance 1 (and a note says so). Display formats are
+    denoised (albedo and normal guided) when the denoiser is installed; --no-denoise turns it off.
 
     Example: variantshot trace bottle.glb -o bottle.png --width 1024 --height 1024 --spp 256 --env 1
     """
@@ -83,6 +90,7 @@ def trace(
         settings = RenderSettings(
             width=width, height=height, spp=spp, seed=seed, threads=threads, camera_name=camera,
             aperture_f_number=f_number, focus_distance_m=focus_distance or None,
+            noise_target=noise_target or None,
         )
         started = time.perf_counter()
         scene = load_gltf(scene_path)
@@ -105,10 +113,24 @@ def trace(
         fmt_options = {}
         if output.suffix.lower() == ".png":
             fmt_options["bit_depth"] = bit_depth
-        write_image(output, film.radiance, exposure_ev=exposure, tone=tone, seed=seed, **fmt_options)
+        radiance = film.radiance
+        if not no_denoise and output.suffix.lower() not in (".pfm", ".npy"):
+            radiance = _denoised(film, threads)
+        write_image(output, radiance, exposure_ev=exposure, tone=tone, seed=seed, **fmt_options)
         seconds = time.perf_counter() - started
     if not quiet:
         _console.error(f"{output}: {width}x{height}, {spp} spp, {seconds:.2f} s")
+
+
+def _denoised(film, threads):
+    """The film denoised with its albedo and normal passes, or the raw radiance without a denoiser."""
+    try:
+        from ..imaging import denoise
+    except ImportError:
+        return film.radiance
+    if not denoise.is_available():
+        return film.radiance
+    return denoise.denoise_film(film, threads=threads)
 
 
 def _apply_rig(scene, name: str, settings):
