@@ -44,6 +44,7 @@ CELL_H = PAD + THUMB + CAPTION_H
 MARGIN = 24
 HEADER_H = 136
 ANGLE_HEADER_H = 28
+PRODUCT_HEADER_H = 34
 ROWS_PER_PDF_PAGE = 3
 
 # colours: dark enough for white text (contrast >= 4.5:1 against white)
@@ -128,15 +129,39 @@ def collect_cells(out_dir, *, approved_only: bool = False) -> list[SheetCell]:
     return cells
 
 
-def _grid(cells: list[SheetCell]) -> tuple[list[str], list[tuple[str, dict[str, SheetCell]]]]:
-    """Angles (columns, first-seen order) and rows ``(sku, {angle: cell})`` (first-seen order)."""
-    angles: list[str] = []
-    rows: dict[str, dict[str, SheetCell]] = {}
+def _groups(cells: list[SheetCell]) -> list[tuple[str, list[str], list[tuple[str, dict[str, SheetCell]]]]]:
+    """The sheet's sections: one per product, each ``(product, angles, rows)``.
+
+    Products differ in their angles (a mug is shown from the handle side, a bottle from the
+    other), so one grid over every angle of a catalog would be mostly empty cells; each product
+    gets its own columns instead.  Angles and rows keep their first-seen order; a row is
+    ``(sku, {angle: cell})``.
+    """
+    groups: dict[str, tuple[list[str], dict[str, dict[str, SheetCell]]]] = {}
     for c in cells:
+        angles, rows = groups.setdefault(c.product, ([], {}))
         if c.angle not in angles:
             angles.append(c.angle)
         rows.setdefault(c.sku, {})[c.angle] = c
-    return angles, list(rows.items())
+    return [(product, angles, list(rows.items())) for product, (angles, rows) in groups.items()]
+
+
+def _paginate(groups, rows_per_page: int):
+    """Split the sections into pages of at most ``rows_per_page`` variant rows each."""
+    pages, page, used = [], [], 0
+    for product, angles, rows in groups:
+        i = 0
+        while i < len(rows):
+            take = min(rows_per_page - used, len(rows) - i)
+            page.append((product, angles, rows[i:i + take]))
+            used += take
+            i += take
+            if used == rows_per_page:
+                pages.append(page)
+                page, used = [], 0
+    if page or not pages:
+        pages.append(page)
+    return pages
 
 
 # --- fonts and text fitting ----------------------------------------------------------------------
@@ -310,14 +335,15 @@ def _draw_cell(page, draw, x: int, y: int, cell: SheetCell | None) -> None:
         draw.text((bx, ty), _ellipsis(note, _font(11), tw), font=_font(11), fill=colour)
 
 
-def _draw_page(title: str, subtitle: str, angles: list[str], rows, page_label: str = "",
-               min_rows: int = 1):
+def _draw_page(title: str, subtitle: str, groups, page_label: str = "", min_rows: int = 1):
     from PIL import Image, ImageDraw
 
-    n_cols = max(1, len(angles))
+    n_cols = max([1] + [len(angles) for _, angles, _ in groups])
+    n_rows = sum(len(rows) for _, _, rows in groups)
     width = 2 * MARGIN + n_cols * CELL_W + (n_cols - 1) * 8
     width = max(width, 760)
-    height = HEADER_H + ANGLE_HEADER_H + max(1, min_rows, len(rows)) * (CELL_H + 8) + MARGIN
+    height = (HEADER_H + len(groups) * (PRODUCT_HEADER_H + ANGLE_HEADER_H)
+              + max(1, min_rows, n_rows) * (CELL_H + 8) + MARGIN)
     page = Image.new("RGB", (width, height), _PAPER)
     draw = ImageDraw.Draw(page)
     tw = width - 2 * MARGIN
@@ -334,18 +360,39 @@ def _draw_page(title: str, subtitle: str, angles: list[str], rows, page_label: s
     if page_label:
         draw.text((width - MARGIN, MARGIN + 6), page_label, font=_font(13), fill=_MUTED, anchor="ra")
     y = HEADER_H
-    for j, angle in enumerate(angles):
-        x = MARGIN + j * (CELL_W + 8)
-        draw.text((x + PAD, y + 4), _ellipsis(angle.upper(), _font(13, True), CELL_W - 2 * PAD),
-                  font=_font(13, True), fill=_MUTED)
-    y += ANGLE_HEADER_H
-    if not rows:
+    if not n_rows:
         draw.text((MARGIN, y + 20), "No shots to show.", font=_font(16, True), fill=_MUTED)
-    for _sku, by_angle in rows:
+    for product, angles, rows in groups:
+        draw.line((MARGIN, y + 2, width - MARGIN, y + 2), fill=_MUTED, width=1)
+        draw.text((MARGIN, y + 8), _ellipsis(product or "(no product)", _font(16, True), tw),
+                  font=_font(16, True), fill=_INK)
+        y += PRODUCT_HEADER_H
         for j, angle in enumerate(angles):
-            _draw_cell(page, draw, MARGIN + j * (CELL_W + 8), y, by_angle.get(angle))
-        y += CELL_H + 8
+            x = MARGIN + j * (CELL_W + 8)
+            draw.text((x + PAD, y + 4), _ellipsis(angle.upper(), _font(13, True), CELL_W - 2 * PAD),
+                      font=_font(13, True), fill=_MUTED)
+        y += ANGLE_HEADER_H
+        for _sku, by_angle in rows:
+            for j, angle in enumerate(angles):
+                _draw_cell(page, draw, MARGIN + j * (CELL_W + 8), y, by_angle.get(angle))
+            y += CELL_H + 8
     return page
+
+
+def _even_heights(pages):
+    """Pad pages at the bottom with paper so they all have the tallest page's size."""
+    from PIL import Image
+
+    width = max(p.width for p in pages)
+    height = max(p.height for p in pages)
+    out = []
+    for p in pages:
+        if p.size != (width, height):
+            canvas = Image.new("RGB", (width, height), _PAPER)
+            canvas.paste(p, (0, 0))
+            p = canvas
+        out.append(p)
+    return out
 
 
 def _summary(cells: list[SheetCell]) -> str:
@@ -366,32 +413,32 @@ def _html(out_dir: Path, cells: list[SheetCell], title: str, built: str) -> str:
         autoescape=True,  # every catalog value is escaped (a '<script>' in a colourway stays text)
         undefined=jinja2.StrictUndefined,
     )
-    angles, rows = _grid(cells)
-
     def src(cell: SheetCell) -> str | None:
         if cell.image_path is None:
             return None
         rel = Path("..") / Path(cell.image)  # sheets/ sits next to shots/
         return urllib.parse.quote(rel.as_posix())
 
-    view_rows = []
-    for sku, by_angle in rows:
-        first = next(iter(by_angle.values()))
-        view_rows.append({
-            "sku": sku,
-            "product": first.product,
-            "colourway": first.colourway,
-            "finish": first.finish,
-            "cells": [(a, by_angle.get(a), src(by_angle[a]) if a in by_angle else None)
-                      for a in angles],
-        })
+    sections = []
+    for product, angles, rows in _groups(cells):
+        view_rows = []
+        for sku, by_angle in rows:
+            first = next(iter(by_angle.values()))
+            view_rows.append({
+                "sku": sku,
+                "product": first.product,
+                "colourway": first.colourway,
+                "finish": first.finish,
+                "cells": [(a, by_angle.get(a), src(by_angle[a]) if a in by_angle else None)
+                          for a in angles],
+            })
+        sections.append({"product": product, "angles": angles, "rows": view_rows})
     return env.get_template("sheet.html.j2").render(
         title=title,
         built=built,
         summary=_summary(cells),
         caution=CAUTION,
-        angles=angles,
-        rows=view_rows,
+        sections=sections,
         products=sorted({c.product for c in cells}),
         qa_words={PASS: "pass", WARN: "warn", FAIL: "fail"},
         n_shots=len(cells),
@@ -489,20 +536,21 @@ def build_sheets(out_dir, approved_only: bool = False, formats=SHEET_FORMATS, *,
     subtitle = f"{_summary(cells)} · built {built}"
     sheets = out_dir / "sheets"
     written: list[Path] = []
-    angles, rows = _grid(cells)
+    groups = _groups(cells)
     if "png" in formats:
-        page = _draw_page(title, subtitle, angles, rows)
+        page = _draw_page(title, subtitle, groups)
         buf = io.BytesIO()
         page.save(buf, format="PNG", optimize=True)
         written.append(atomic_write(sheets / f"{stem}.png", buf.getvalue()))
     if "pdf" in formats:
-        n_pages = max(1, math.ceil(len(rows) / rows_per_page))
+        n_rows = sum(len(rows) for _, _, rows in groups)
+        page_groups = _paginate(groups, rows_per_page)
         pages = [
-            _draw_page(title, subtitle, angles, rows[i * rows_per_page:(i + 1) * rows_per_page],
-                       page_label=f"page {i + 1} of {n_pages}",
-                       min_rows=min(rows_per_page, max(1, len(rows))))
-            for i in range(n_pages)
+            _draw_page(title, subtitle, pg, page_label=f"page {i + 1} of {len(page_groups)}",
+                       min_rows=min(rows_per_page, max(1, n_rows)))
+            for i, pg in enumerate(page_groups)
         ]
+        pages = _even_heights(pages)  # every page the same size, the last one too
         buf = io.BytesIO()
         pages[0].save(buf, format="PDF", save_all=True, append_images=pages[1:], resolution=110.0,
                       title=title, producer="variantshot")

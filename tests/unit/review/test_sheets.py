@@ -1,6 +1,7 @@
 """review.sheets: PNG grid, multi-page PDF (read back with pypdf), HTML (parsed with html.parser), exports."""
 
 import csv
+import dataclasses
 import html.parser
 import json
 
@@ -51,9 +52,29 @@ def test_png_sheet_has_one_fixed_size_cell_per_variant_and_angle(batch):
     assert png in paths
     with Image.open(png) as im:
         w, h = im.size
-    n_rows, n_cols = 5, 2
+    manifest = approvals.load_manifest(batch)
+    products = {e["product"] for e in manifest.values()}
+    n_rows = len({e["sku"] for e in manifest.values()})
+    n_cols = max(len({e["angle"] for e in manifest.values() if e["product"] == p}) for p in products)
     assert w == max(760, 2 * sheets.MARGIN + n_cols * sheets.CELL_W + (n_cols - 1) * 8)
-    assert h == sheets.HEADER_H + sheets.ANGLE_HEADER_H + n_rows * (sheets.CELL_H + 8) + sheets.MARGIN
+    # one section per product: its name, its own angle columns, then one row per variant
+    assert h == (sheets.HEADER_H + len(products) * (sheets.PRODUCT_HEADER_H + sheets.ANGLE_HEADER_H)
+                 + n_rows * (sheets.CELL_H + 8) + sheets.MARGIN)
+
+
+def test_each_product_gets_its_own_angle_columns(tmp_path):
+    # a mug shown from front and top and a bottle from front and back: two sections of two
+    # columns each, rather than one grid of three columns with empty cells
+    out = tmp_path / "out"
+    make_batch(out, variants=DEFAULT_VARIANTS[:1], angles=["front", "top"])
+    groups = sheets._groups(sheets.collect_cells(out))
+    assert [(p, a) for p, a, _ in groups] == [(DEFAULT_VARIANTS[0][1], ["front", "top"])]
+    cells = sheets.collect_cells(out)
+    other = [dataclasses.replace(c, product="bottle", sku="BTL-1", angle=a)
+             for c, a in zip(cells, ["front", "back"])]
+    groups = sheets._groups(cells + other)
+    assert [a for _, a, _ in groups] == [["front", "top"], ["front", "back"]]
+    assert all(len(by_angle) == len(a) for _, a, rows in groups for _, by_angle in rows)
 
 
 def test_pdf_has_expected_pages_and_images(batch):
@@ -143,7 +164,7 @@ def test_transparent_shots_show_a_checkerboard_and_opaque_ones_do_not(tmp_path):
     sheets.build_sheets(out, formats=("png",))
     with Image.open(out / "sheets/contact-sheet.png") as im:
         arr = np.asarray(im.convert("RGB"))
-    y0 = sheets.HEADER_H + sheets.ANGLE_HEADER_H + sheets.PAD
+    y0 = sheets.HEADER_H + sheets.PRODUCT_HEADER_H + sheets.ANGLE_HEADER_H + sheets.PAD
     x_front = sheets.MARGIN + sheets.PAD
     x_back = x_front + sheets.CELL_W + 8
     box = (slice(y0, y0 + 20), slice(None))  # the top band of the thumbnails: background only
