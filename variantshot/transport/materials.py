@@ -7,7 +7,15 @@ columns for the KHR extensions still to come).  Interpreted here:
   ``KHR_materials_emissive_strength`` (multiplies the emission) and ``KHR_materials_ior``
   (sets the dielectric f0 = ((ior - 1)/(ior + 1))**2; default 1.5 gives 0.04);
 * ``KHR_materials_specular`` ``specularFactor`` (scales the dielectric Fresnel: f0 x s,
-  f90 = s; 0 gives a pure Lambertian surface); ``specularColorFactor`` is not applied yet;
+  f90 = s; 0 gives a pure Lambertian surface) and ``specularColorFactor`` (tints f0);
+* ``KHR_materials_transmission`` ``transmissionFactor``, ``KHR_materials_volume``
+  ``thicknessFactor`` (0: thin-walled; > 0: the closed mesh is a volume, the thickness value
+  itself is not used -- a path tracer uses the traced length), ``attenuationColor`` and
+  ``attenuationDistance`` (sigma_a = -ln(colour) / distance, Beer-Lambert along the path);
+* ``KHR_materials_clearcoat`` ``clearcoatFactor`` / ``clearcoatRoughnessFactor``,
+  ``KHR_materials_sheen`` ``sheenColorFactor`` / ``sheenRoughnessFactor``,
+  ``KHR_materials_anisotropy`` ``anisotropyStrength`` / ``anisotropyRotation``;
+  the extensions' own textures are not sampled (factors only; see ``bsdf_kernels``);
 * ``alphaMode`` / ``alphaCutoff`` and ``doubleSided``.
 
 Back faces: glTF leaves single-sided back faces to rasteriser culling.  The path tracer never
@@ -19,17 +27,21 @@ light (front side only), a double-sided one emits from both sides.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from ..errors import RenderError
 from ..geometry.scene import Material, Scene
 from .textures import AtlasBuilder, TextureAtlas, transform_matrix
 
-#: glTF extensions the path tracer interprets (KHR_materials_specular: specularFactor only;
-#: KHR_texture_transform on every texture slot).  The catalog checker reads this list.
+#: glTF extensions the path tracer interprets (the KHR_materials_* ones by their factors; their
+#: textures are not sampled; KHR_texture_transform on every core texture slot).  The catalog
+#: checker reads this list.
 SUPPORTED_EXTENSIONS = frozenset(
     {"KHR_materials_emissive_strength", "KHR_materials_ior", "KHR_materials_specular", "KHR_texture_transform",
-     "KHR_lights_punctual"}
+     "KHR_lights_punctual", "KHR_materials_transmission", "KHR_materials_volume", "KHR_materials_clearcoat",
+     "KHR_materials_sheen", "KHR_materials_anisotropy"}
 )
 
 N_COLUMNS = 64
@@ -55,6 +67,59 @@ def material_ior(material: Material) -> float:
 def material_specular(material: Material) -> float:
     ext = (material.extensions or {}).get("KHR_materials_specular") or {}
     return float(ext.get("specularFactor", 1.0))
+
+
+def _ext(material: Material, name: str) -> dict:
+    ext = (material.extensions or {}).get(name)
+    return ext if isinstance(ext, dict) else {}
+
+
+def _number(ext: dict, key: str, default: float, where: str, name: str, lo: float = 0.0, hi: float = math.inf) -> float:
+    value = ext.get(key, default)
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        v = math.nan
+    if not (lo <= v <= hi):
+        raise RenderError(f"{where}: {name} {key} {value!r} is not accepted (a number in [{lo}, {hi}])")
+    return v
+
+
+def _colour(ext: dict, key: str, default, where: str, name: str) -> np.ndarray:
+    value = ext.get(key, default)
+    try:
+        c = np.asarray(value, np.float64).reshape(3)
+    except (TypeError, ValueError):
+        c = np.full(3, np.nan)
+    if not np.all(np.isfinite(c)) or np.any(c < 0):
+        raise RenderError(f"{where}: {name} {key} {value!r} is not accepted (3 numbers >= 0)")
+    return c
+
+
+def pack_extensions(material: Material, row: np.ndarray, where: str) -> None:
+    """Columns 48-63 of a material row (layout in ``bsdf_kernels``)."""
+    tr = _ext(material, "KHR_materials_transmission")
+    row[48] = _number(tr, "transmissionFactor", 0.0, where, "KHR_materials_transmission", 0.0, 1.0)
+    vol = _ext(material, "KHR_materials_volume")
+    row[49] = _number(vol, "thicknessFactor", 0.0, where, "KHR_materials_volume")
+    dist = _number(vol, "attenuationDistance", math.inf, where, "KHR_materials_volume", 0.0)
+    if dist <= 0.0:
+        raise RenderError(f"{where}: KHR_materials_volume attenuationDistance must be > 0, got {dist!r}")
+    att = _colour(vol, "attenuationColor", (1.0, 1.0, 1.0), where, "KHR_materials_volume")
+    if row[49] > 0 and math.isfinite(dist):
+        # KHR_materials_volume: sigma_t = -ln(c) / d; c = 0 absorbs everything (a large sigma)
+        row[50:53] = -np.log(np.clip(att, 1e-30, 1.0)) / dist
+    cc = _ext(material, "KHR_materials_clearcoat")
+    row[53] = _number(cc, "clearcoatFactor", 0.0, where, "KHR_materials_clearcoat", 0.0, 1.0)
+    row[54] = _number(cc, "clearcoatRoughnessFactor", 0.0, where, "KHR_materials_clearcoat", 0.0, 1.0)
+    sh = _ext(material, "KHR_materials_sheen")
+    row[55:58] = np.clip(_colour(sh, "sheenColorFactor", (0.0, 0.0, 0.0), where, "KHR_materials_sheen"), 0, 1)
+    row[58] = _number(sh, "sheenRoughnessFactor", 0.0, where, "KHR_materials_sheen", 0.0, 1.0)
+    sp = _ext(material, "KHR_materials_specular")
+    row[59:62] = _colour(sp, "specularColorFactor", (1.0, 1.0, 1.0), where, "KHR_materials_specular")
+    an = _ext(material, "KHR_materials_anisotropy")
+    row[62] = _number(an, "anisotropyStrength", 0.0, where, "KHR_materials_anisotropy", 0.0, 1.0)
+    row[63] = _number(an, "anisotropyRotation", 0.0, where, "KHR_materials_anisotropy", -math.inf)
 
 
 def pack_material(material: Material, builder: AtlasBuilder, where: str) -> np.ndarray:
@@ -88,6 +153,7 @@ def pack_material(material: Material, builder: AtlasBuilder, where: str) -> np.n
     _slot(row, SLOT_METALLIC_ROUGHNESS, builder, material.metallic_roughness_texture, False)
     _slot(row, SLOT_EMISSIVE, builder, material.emissive_texture, True)
     _slot(row, SLOT_NORMAL, builder, material.normal_texture, False)
+    pack_extensions(material, row, where)
     return row
 
 
@@ -114,13 +180,14 @@ def eval_brdf(material_row, wo, wi, base_colour=None, metallic=None, roughness=N
     return out
 
 
-def resolve_params(material_row, base_colour=None, metallic=None, roughness=None) -> np.ndarray:
-    """The resolved ``(8,) float64`` BSDF record of ``bsdf_kernels`` for a packed material row."""
+def resolve_params(material_row, base_colour=None, metallic=None, roughness=None, entering=True) -> np.ndarray:
+    """The resolved ``(N_BSDF,) float64`` BSDF record of ``bsdf_kernels`` for a packed material row."""
     row = np.asarray(material_row, np.float64)
     bc = row[1:4] if base_colour is None else np.asarray(base_colour, np.float64)
     m = row[5] if metallic is None else float(metallic)
     r = row[6] if roughness is None else float(roughness)
-    from .bsdf_kernels import make_bsdf
+    from .bsdf_kernels import material_bsdf
 
-    ior = row[13] if row[13] > 0 else 1.5
-    return np.array(make_bsdf(row[0], bc[0], bc[1], bc[2], m, r, ior, row[15]), np.float64)
+    table = np.ascontiguousarray(row.reshape(1, -1), dtype=np.float32)
+    return np.array(material_bsdf(table, 0, float(bc[0]), float(bc[1]), float(bc[2]), float(m), float(r),
+                                  bool(entering)), np.float64)

@@ -10,7 +10,11 @@ At every surface vertex the path adds
   the emissive-triangle group, each punctual light; rule in ``lights.py``), a point on it, a
   shadow ray; area densities are turned into solid angle by d^2 / |cos theta_light|; weighted
   by the power heuristic against ``pdf_f``; punctual lights are delta lights (weight 1);
-* then continues by sampling the BSDF.  After three bounces Russian roulette ends the path
+* then continues by sampling the BSDF; a sample below the surface (transmission) leaves from
+  the far side, and the next emission it reaches counts with weight 1 (light samples only go
+  to the reflection side, so no other strategy covers it).  A segment that ends on a back face
+  of a ``KHR_materials_volume`` material is attenuated by exp(-sigma_a length) (Beer-Lambert,
+  ``layers_kernels``).  After three bounces Russian roulette ends the path
   with probability 1 - min(1, max(throughput)) and divides survivors by the survival
   probability.  ``max_depth`` is only a safety net.
 
@@ -41,7 +45,7 @@ from .._jit import KERNEL, PARALLEL, njit, prange
 import math
 
 from ..geometry.bvh_kernels import any_hit, closest_hit
-from .bsdf_kernels import eval_f, make_bsdf, pdf_f, sample_f
+from .bsdf_kernels import eval_f, material_bsdf, pdf_f, sample_f
 from .camera_kernels import generate_ray
 from .env_kernels import env_pdf, env_radiance, env_sample
 from .light_kernels import sample_emissive_point, sample_punctual, triangle_geometry
@@ -54,6 +58,7 @@ from .sampling_kernels import (
     sample_tent,
     uniform_from_state,
 )
+from .layers_kernels import volume_attenuation
 from .texture_kernels import sample_slot
 
 
@@ -253,6 +258,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
     depth_out = -1.0
     seg_t = 0.0  # distance travelled through alpha-passed surfaces since the last vertex
     prev_pdf = 0.0
+    prev_transmit = False  # the last BSDF sample refracted: NEE cannot make it, no MIS
     depth = 0
     passes = 0
     while True:
@@ -261,7 +267,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             if has_env:
                 er, eg, eb = env_radiance(env_pixels, env_params, dx, dy, dz)
                 w = 1.0
-                if depth > 0 and not baseline:
+                if depth > 0 and not baseline and not prev_transmit:
                     pl = p_env_sel * env_pdf(env_pixels, env_cdf_rows, env_cdf_cols, env_params, dx, dy, dz)
                     w = power_heuristic(prev_pdf, pl)
                 lr += beta_r * er * w
@@ -278,6 +284,11 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             ngx = -ngx
             ngy = -ngy
             ngz = -ngz
+            # a segment ending on a back face of a volume material ran inside it (Beer-Lambert)
+            va_r, va_g, va_b = volume_attenuation(mat_table, mat, seg_t + t)
+            beta_r *= va_r
+            beta_g *= va_g
+            beta_b *= va_b
         alpha_mode = int(mat_table[mat, 10])
         if alpha_mode != 0:
             alpha = surface_alpha(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1, ca)
@@ -336,7 +347,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             er, eg, eb = emission(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1)
             if er > 0.0 or eg > 0.0 or eb > 0.0:
                 w = 1.0
-                if depth > 0 and not baseline:
+                if depth > 0 and not baseline and not prev_transmit:
                     cos_l = abs(ngx * dx + ngy * dy + ngz * dz)
                     pl = 0.0
                     if cos_l > 0.0 and area > 0.0:
@@ -351,8 +362,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         mr = sample_slot(mat_table, mat, 24, tex_pixels, tex_table, u0, v0, u1, v1)
         metallic = float(mat_table[mat, 5]) * mr[2]
         roughness = float(mat_table[mat, 6]) * mr[1]
-        bsdf = make_bsdf(float(mat_table[mat, 0]), base_r, base_g, base_b, metallic, roughness,
-                         float(mat_table[mat, 13]), float(mat_table[mat, 15]))
+        bsdf = material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, front)
         tx, ty, tz, bx, by, bz = onb_from_normal(snx, sny, snz)
         wlx = wox * tx + woy * ty + woz * tz
         wly = wox * bx + woy * by + woz * bz
@@ -440,7 +450,8 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                 ilx = wix * tx + wiy * ty + wiz * tz
                 ily = wix * bx + wiy * by + wiz * bz
                 ilz = wix * snx + wiy * sny + wiz * snz
-                fr, fg, fb = eval_f(bsdf, wlx, wly, wlz, ilx, ily, ilz)
+                # reflection side only (eval_f reads wi.z < 0 as transmission, 0 as nothing)
+                fr, fg, fb = eval_f(bsdf, wlx, wly, wlz, ilx, ily, max(ilz, 0.0))
                 if fr > 0.0 or fg > 0.0 or fb > 0.0:
                     vis = shadow_transmittance(nodes_f, nodes_i, tris_f, tri_ids, positions, normals, uvs,
                                                colours, triangles, tri_material, mat_table, tex_pixels,
@@ -462,9 +473,10 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         nx_ = ilx * tx + ily * bx + ilz * snx
         ny_ = ilx * ty + ily * by + ilz * sny
         nz_ = ilx * tz + ily * bz + ilz * snz
-        if nx_ * ngx + ny_ * ngy + nz_ * ngz <= 0.0:
+        transmit = ilz < 0.0
+        if (nx_ * ngx + ny_ * ngy + nz_ * ngz <= 0.0) != transmit:
             break
-        k = ilz / pdf
+        k = abs(ilz) / pdf
         beta_r *= fr * k
         beta_g *= fg * k
         beta_b *= fb * k
@@ -480,9 +492,15 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                 beta_r /= q
                 beta_g /= q
                 beta_b /= q
-        ox = ox_s
-        oy = oy_s
-        oz = oz_s
+        prev_transmit = transmit
+        if transmit:
+            ox = px - ngx * eps
+            oy = py - ngy * eps
+            oz = pz - ngz * eps
+        else:
+            ox = ox_s
+            oy = oy_s
+            oz = oz_s
         seg_t = 0.0
         dx = nx_
         dy = ny_
