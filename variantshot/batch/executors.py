@@ -10,8 +10,9 @@ another machine needs no access to the output folder.
   with numba's parallel loops using every core (DESIGN.md: one shot per process, all cores).
 * With ``workers=N > 1`` it starts N worker processes (``spawn``, so no forked numba thread pools)
   and splits the cores between them; useful when shots are small and per-shot overheads dominate.
-* :class:`DaskExecutor` submits each task to a ``distributed`` cluster (``--cluster
-  tcp://host:8786``), retrying a task whose worker was lost; ``dask`` is imported only here.
+* :class:`~variantshot.batch.cluster.DaskExecutor` (in ``cluster.py``) submits each task to a
+  Dask ``distributed`` cluster (``--cluster tcp://host:8786`` or ``local:N``), re-running a shot
+  whose worker was lost; ``dask`` is imported only there.
 """
 
 from __future__ import annotations
@@ -85,46 +86,40 @@ class LocalExecutor:
         return None
 
 
-class DaskExecutor:
-    """Run tasks on a Dask ``distributed`` cluster; results come back to the client as bytes.
+def __getattr__(name):
+    # DaskExecutor lives in cluster.py (dask is imported only there, and only when used)
+    if name == "DaskExecutor":
+        from .cluster import DaskExecutor
+
+        return DaskExecutor
+    raise AttributeError(name)
+
+
+def make_executor(workers: int = 1, cluster: str | None = None, *, retries: int = 2):
+    """The executor the CLI options ask for.
 
     Parameters
     ----------
-    address : str
-        The scheduler, e.g. ``tcp://host:8786``.
+    workers : int
+        ``--workers``: local worker processes (ignored with ``cluster``; 1 or N > 1).
+    cluster : str, optional
+        ``--cluster``: ``local:N`` or a Dask scheduler address (:func:`.cluster.parse_cluster`).
     retries : int
-        How many times a task is resubmitted when its worker is lost or it raises.
+        Worker losses a shot survives on a ``local:N`` cluster.
+
+    Raises
+    ------
+    InputError
+        A bad ``--cluster`` value, ``--workers`` together with ``--cluster``, or Dask missing.
     """
-
-    def __init__(self, address: str, retries: int = 2):
-        try:
-            from distributed import Client
-        except ImportError as exc:  # pragma: no cover - depends on the optional extra
-            from ..errors import InputError
-
-            raise InputError(
-                f"--cluster needs the 'distributed' package ({exc})", accepted="pip install 'variantshot[cluster]'"
-            ) from None
-        self.client = Client(address)
-        self.retries = retries
-
-    def map(self, fn: Callable, tasks: Iterable) -> Iterator:
-        from distributed import as_completed
-
-        futures = {self.client.submit(fn, t, pure=False, retries=self.retries, key=f"shot-{t.shot_id}"): t
-                   for t in tasks}
-        for f in as_completed(list(futures)):
-            try:
-                yield f.result()
-            except Exception as exc:  # noqa: BLE001 - retries exhausted: the shot fails, the batch goes on
-                yield _failed(futures[f], exc)
-
-    def close(self) -> None:
-        self.client.close()
-
-
-def make_executor(workers: int = 1, cluster: str | None = None):
-    """The executor the CLI options ask for."""
     if cluster:
-        return DaskExecutor(cluster)
+        from ..errors import InputError
+        from .cluster import DaskExecutor, parse_cluster, require_distributed
+
+        spec = parse_cluster(cluster)
+        if workers and int(workers) > 1:
+            raise InputError("--workers and --cluster exclude each other",
+                             accepted="--cluster local:N for N worker processes on this machine")
+        require_distributed()
+        return DaskExecutor(spec, retries=retries)
     return LocalExecutor(workers)

@@ -44,6 +44,10 @@ def run_batch(catalog: Path, out: Path, *, quality: str, only, force: bool, work
         if background is not None:
             output = output.replace(background=background)
         executor = make_executor(workers, cluster)
+        if cluster and not quiet:
+            link = getattr(executor, "dashboard_link", None)
+            _console.error(f"cluster {cluster}: {len(executor.worker_pids())} worker(s)"
+                           + (f", dashboard {link}" if link else ""))
 
         def on_shot(entry: dict) -> None:
             if as_json:
@@ -51,13 +55,15 @@ def run_batch(catalog: Path, out: Path, *, quality: str, only, force: bool, work
                                                                "key", "seconds")}
                                       | {"qa": (entry.get("qa") or {}).get("status")}, ensure_ascii=False))
 
-        with _console.progress_bar("rendering", enabled=not (quiet or as_json)) as bar:
-            report = render_batch(
-                catalog, out, quality=q, output=output, rig=rig, key_to_fill=key_to_fill, rotation_deg=rotation,
-                only=only or None, force=force, executor=executor, templates_dir=templates,
-                sheet_formats=sheet_formats, progress=bar, on_shot=on_shot,
-            )
-        executor.close()
+        try:
+            with _console.progress_bar("rendering", enabled=not (quiet or as_json)) as bar:
+                report = render_batch(
+                    catalog, out, quality=q, output=output, rig=rig, key_to_fill=key_to_fill, rotation_deg=rotation,
+                    only=only or None, force=force, executor=executor, templates_dir=templates,
+                    sheet_formats=sheet_formats, progress=bar, on_shot=on_shot,
+                )
+        finally:
+            executor.close()  # a local:N cluster stops its workers even when the batch fails
     if not as_json:
         for line in _summary(report, out):
             if not quiet or not line.startswith(str(out)):
@@ -73,7 +79,8 @@ def render(
     only: list[str] = typer.Option(None, "--only", help="Only shot ids matching this glob (repeatable), e.g. 'TT-MUG*'."),
     force: bool = typer.Option(False, "--force", help="Render the selected shots even when up to date."),
     workers: int = typer.Option(1, "--workers", help="Worker processes on this machine (each gets cores/N threads)."),
-    cluster: str = typer.Option(None, "--cluster", help="Dask scheduler address (tcp://host:8786) to render on."),
+    cluster: str = typer.Option(None, "--cluster", help="Render on Dask: a scheduler address (tcp://host:8786) "
+                                "or local:N (N worker processes here); needs variantshot[cluster]."),
     rig: str = typer.Option(None, "--rig", help="Studio rig for rows without a rig cell (default soft-even)."),
     background: str = typer.Option(None, "--background", help="white, transparent or backdrop, for rows without "
                                    "a background cell (default white)."),
