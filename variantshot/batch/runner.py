@@ -350,11 +350,14 @@ def _render_shot(task: ShotTask) -> ShotResult:
     bg = task.output.background
     t_load = time.perf_counter()
     product_bvh = build_bvh(product.positions, product.triangles)
-    film = render(shot_scene, settings, env=env, camera=camera)
     # the product's coverage: compositing needs it, and QA frames the product by it on any background
     cov_settings = dataclasses.replace(settings, spp=max(8, min(settings.spp // 4, 32)), max_depth=1,
                                        noise_target=None)  # coverage: every pixel, fixed spp
     coverage = render(product, cov_settings, env=None, camera=camera, bvh=product_bvh).alpha
+    # on white / transparent the composite uses the render only where coverage > 0: sample
+    # just those pixels (and a margin for the denoiser's neighbourhood)
+    sample_mask = _sample_mask(coverage) if bg in ("white", "transparent") else None
+    film = render(shot_scene, settings, env=env, camera=camera, sample_mask=sample_mask)
     if bg in ("white", "transparent"):
         step = 2 if max(settings.width, settings.height) >= 256 else 1
         shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, step=step, seed=task.quality.seed)
@@ -390,6 +393,27 @@ def _render_shot(task: ShotTask) -> ShotResult:
     if shadow is not None:
         metrics["shadow_pixels"] = int(np.count_nonzero(shadow < 1.0))
     return ShotResult(task.shot_id, True, images=images, qa=qa, metrics=metrics)
+
+
+def _sample_mask(coverage: np.ndarray, margin_px: int = 16) -> np.ndarray:
+    """Pixels the shot render must sample: 8 x 8 tiles within ``margin_px`` of any covered pixel.
+
+    The composite on white or transparent multiplies the render by the coverage, so other
+    pixels are never seen; the margin keeps the denoiser's neighbourhood of edge pixels real.
+    """
+    h, w = coverage.shape
+    tile = 8
+    th, tw = -(-h // tile), -(-w // tile)
+    padded = np.zeros((th * tile, tw * tile), bool)
+    padded[:h, :w] = coverage > 0
+    tiles = padded.reshape(th, tile, tw, tile).any(axis=(1, 3))
+    r = -(-margin_px // tile)
+    grown = np.zeros((th + 2 * r, tw + 2 * r), bool)
+    for dy in range(2 * r + 1):
+        for dx in range(2 * r + 1):
+            grown[dy:dy + th, dx:dx + tw] |= tiles
+    tiles = grown[r:r + th, r:r + tw]
+    return np.repeat(np.repeat(tiles, tile, axis=0), tile, axis=1)[:h, :w]
 
 
 def _maybe_denoise(film, threads=None):

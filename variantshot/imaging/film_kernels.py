@@ -65,7 +65,8 @@ def tile_relative_error(sum_rgb, sum_sq, n_pixel, tile_px, floor, out):
     the pixel's own samples (the three channels' sums combined per sample would need the
     cross terms, so ``var_Y`` uses the sum of ``w_c**2 var_c``, channels taken as independent,
     as the QA noise check does).  Inputs: ``sum_rgb, sum_sq`` (H, W, 3) float64, ``n_pixel``
-    (H, W) float64 (>= 2 everywhere), ``floor`` float (linear luminance); output ``out``
+    (H, W) float64 (pixels with fewer than 2 samples are left out; a tile without any gets
+    0), ``floor`` float (linear luminance); output ``out``
     (ceil(H / tile), ceil(W / tile)) float64, tile row ``ty`` written only by iteration ``ty``.
     """
     height = sum_rgb.shape[0]
@@ -84,6 +85,8 @@ def tile_relative_error(sum_rgb, sum_sq, n_pixel, tile_px, floor, out):
             for y in range(y0, y1):
                 for x in range(x0, x1):
                     n = n_pixel[y, x]
+                    if n < 2.0:
+                        continue  # not sampled (outside the render's sample mask)
                     lum = 0.0
                     var = 0.0
                     for c in range(3):
@@ -95,5 +98,8 @@ def tile_relative_error(sum_rgb, sum_sq, n_pixel, tile_px, floor, out):
                     sum_y += lum
                     sum_var += var
                     count += 1
+            if count == 0:
+                out[ty, tx] = 0.0
+                continue
             mean_y = sum_y / count
             out[ty, tx] = math.sqrt(sum_var / count) / max(mean_y, floor)

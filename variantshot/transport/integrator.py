@@ -93,9 +93,10 @@ def _still_noisy(sums, active: np.ndarray, settings: RenderSettings) -> np.ndarr
 
     h, w = active.shape
     tile = settings.noise_tile_px
+    sampled = sums.n_pixel > 0
     n = np.maximum(sums.n_pixel, 1.0)
     lum = (sums.rgb / n[..., None]) @ np.array([0.2126, 0.7152, 0.0722])
-    floor = max(settings.noise_floor * float(np.mean(lum)), 1e-12)
+    floor = max(settings.noise_floor * float(np.mean(lum[sampled])) if sampled.any() else 0.0, 1e-12)
     err = tile_relative_error(sums, tile, floor)
     noisy = np.repeat(np.repeat(err > settings.noise_target, tile, axis=0), tile, axis=1)[:h, :w]
     return (active.astype(bool) & noisy).astype(np.uint8)
@@ -109,6 +110,7 @@ def render(
     camera: Camera | None = None,
     progress=None,
     bvh=None,
+    sample_mask=None,
 ) -> Film:
     """Render ``scene`` by path tracing.
 
@@ -128,6 +130,10 @@ def render(
         ``done_spp == total_spp``).
     bvh : BVH, optional
         A prebuilt ``build_bvh(scene.positions, scene.triangles)`` to reuse.
+    sample_mask : (H, W) bool ndarray, optional
+        Pixels to sample; the others take no samples at all (black radiance, zero albedo and
+        alpha, infinite variance and depth, ``spp_map`` 0).  The batch passes the product's
+        coverage, dilated, when the background replaces everything else.
 
     Returns
     -------
@@ -182,9 +188,17 @@ def render(
     fopts = np.array([eps, FILTER_RADIUS_PX], np.float64)
     total = settings.spp
     adaptive = settings.noise_target is not None and total > settings.adaptive_min_spp
-    active = np.ones((height, width), np.uint8)
-    rows = _row_order(np.arange(height, dtype=np.int32))
-    if adaptive:
+    if sample_mask is None:
+        active = np.ones((height, width), np.uint8)
+        rows = _row_order(np.arange(height, dtype=np.int32))
+    else:
+        mask = np.asarray(sample_mask, dtype=bool)
+        if mask.shape != (height, width):
+            raise RenderError(f"render: sample_mask has shape {mask.shape}, the image is {(height, width)}")
+        active = mask.astype(np.uint8)
+        rows = _row_order(np.flatnonzero(mask.any(axis=1)).astype(np.int32))
+    per_pixel = adaptive or sample_mask is not None
+    if per_pixel:
         sums.n_pixel = np.zeros((height, width), np.float64)
     done = 0
     while done < total:
@@ -206,7 +220,7 @@ def render(
             sums.rgb, sums.rgb_sq, sums.albedo, sums.normal, sums.alpha, sums.depth, sums.depth_n,
             rows, active,
         )
-        if adaptive:
+        if per_pixel:
             sums.n_pixel += float(end - done) * active
         done = end
         sums.n = done

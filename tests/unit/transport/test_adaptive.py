@@ -120,3 +120,19 @@ def test_progress_ends_at_the_cap_even_when_every_tile_stops_early():
 def test_bad_adaptive_settings_name_the_field(field, value):
     with pytest.raises(RenderError, match=f"RenderSettings.{field}"):
         RenderSettings(**{field: value})
+
+
+def test_sample_mask_skips_pixels_and_leaves_the_others_bit_identical():
+    # pixels are independent (each sample's random numbers hash its own pixel index), so a
+    # pixel inside the mask gets the very samples it gets in a full render
+    scene, cam = _furnace()
+    env = make_environment(1.0)
+    mask = np.zeros((48, 48), bool)
+    mask[10:30, 5:40] = True
+    full = render(scene, _settings(noise_target=None, spp=8), env=env, camera=cam)
+    part = render(scene, _settings(noise_target=None, spp=8), env=env, camera=cam, sample_mask=mask)
+    assert part.radiance[mask].tobytes() == full.radiance[mask].tobytes()
+    assert np.all(part.spp_map[~mask] == 0) and np.all(part.spp_map[mask] == 8)
+    assert np.all(part.radiance[~mask] == 0.0) and np.all(part.alpha[~mask] == 0.0)
+    with pytest.raises(RenderError, match="sample_mask"):
+        render(scene, _settings(spp=2), env=env, camera=cam, sample_mask=mask[:10])
