@@ -145,3 +145,38 @@ def test_rougher_clearcoat_gives_a_wider_highlight():
     # reflected highlight of a small lamp spreads wider as the coat roughness grows
     w = [_highlight_width(r) for r in (0.2, 0.4, 0.7)]
     assert w[0] < w[1] < w[2], w
+
+
+def _anisotropic_highlight(tangent, rotation):
+    """(spread along image x, spread along image y) of a lamp's highlight on brushed metal."""
+    from transport_scenes import disk
+
+    metal = Material(name="brushed", base_colour_factor=(0.9, 0.9, 0.9, 1), metallic_factor=1.0, roughness_factor=0.2,
+                     extensions={"KHR_materials_anisotropy": {"anisotropyStrength": 0.9,
+                                                              "anisotropyRotation": rotation}})
+    lamp = Material(name="lamp", base_colour_factor=(0, 0, 0, 1), emissive_factor=(1, 1, 1), emissive_strength=50.0)
+    fp, ft = quad((0, 0, 0), (3, 0, 0), (0, 3, 0))
+    lp, lt = disk((1.5, 0, 3), (-1.5, 0, -3), 0.1, 32)
+    pos, tris, mats, nrm = combine([(fp, ft, 0, None), (lp, lt, 1, None)])
+    tan = np.zeros((len(pos), 4))
+    tan[:, :3] = tangent
+    tan[:, 3] = 1.0
+    scene = make_scene(pos, tris, normals=nrm, tangents=tan, materials=[metal, lamp], tri_material=mats)
+    film = render(scene, RenderSettings(width=24, height=24, spp=16, seed=6),
+                  camera=camera((-1.5, 0, 3), (0, 0, 0), yfov_rad=0.9))
+    img = film.radiance[..., 0]
+    yy, xx = np.mgrid[0:24, 0:24]
+    cx, cy = (img * xx).sum() / img.sum(), (img * yy).sum() / img.sum()
+    return float((img * (xx - cx) ** 2).sum() / img.sum()), float((img * (yy - cy) ** 2).sum() / img.sum())
+
+
+def test_brushed_metal_stretches_the_highlight_along_the_tangent():
+    # KHR_materials_anisotropy: alpha along the (rotated) tangent = mix(alpha, 1, strength^2),
+    # so the highlight is long along the tangent's direction on screen; a rotation of pi/2
+    # turns a tangent along x into one along y (the bitangent, w = +1)
+    sx_x, sy_x = _anisotropic_highlight((1, 0, 0), 0.0)
+    sx_y, sy_y = _anisotropic_highlight((0, 1, 0), 0.0)
+    sx_r, sy_r = _anisotropic_highlight((1, 0, 0), math.pi / 2)
+    assert sx_x > 2 * sy_x and sy_y > 2 * sx_y, (sx_x, sy_x, sx_y, sy_y)
+    assert sy_r > 2 * sx_r
+    assert sy_r == pytest.approx(sy_y, rel=0.15) and sx_r == pytest.approx(sx_y, rel=0.3)

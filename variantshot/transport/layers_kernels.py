@@ -14,6 +14,8 @@ from .._jit import KERNEL, njit
 
 import math
 
+from .sampling_kernels import onb_from_normal
+
 
 @njit(**KERNEL)
 def volume_attenuation(mat_table, mat, distance):
@@ -26,3 +28,66 @@ def volume_attenuation(mat_table, mat, distance):
     if sr <= 0.0 and sg <= 0.0 and sb <= 0.0:
         return 1.0, 1.0, 1.0
     return math.exp(-sr * distance), math.exp(-sg * distance), math.exp(-sb * distance)
+
+
+@njit(**KERNEL)
+def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, nx, ny, nz):
+    """Shading frame (tx, ty, tz, bx, by, bz) whose x axis is the anisotropy direction.
+
+    KHR_materials_anisotropy: the direction is the tangent T rotated by ``anisotropyRotation``
+    towards the bitangent B = (N x T) w in the tangent plane.  T is the interpolated TANGENT
+    (xyz, w = handedness) when the mesh has one, else dp/du of the triangle in the
+    normalTexture's UV set (as ``path_kernels.normal_mapped``), Gram-Schmidt-orthogonalised
+    against the shading normal; without either, the frame of ``onb_from_normal``.
+    """
+    i0 = triangles[tri, 0]
+    i1 = triangles[tri, 1]
+    i2 = triangles[tri, 2]
+    b0 = 1.0 - b1 - b2
+    tx = b0 * tangents[i0, 0] + b1 * tangents[i1, 0] + b2 * tangents[i2, 0]
+    ty = b0 * tangents[i0, 1] + b1 * tangents[i1, 1] + b2 * tangents[i2, 1]
+    tz = b0 * tangents[i0, 2] + b1 * tangents[i1, 2] + b2 * tangents[i2, 2]
+    w = tangents[i0, 3]
+    if tx * tx + ty * ty + tz * tz <= 1e-20:
+        set_ = int(mat_table[mat, 41])
+        if set_ < 0 or set_ > 1:
+            set_ = 0
+        du1 = float(uvs[i1, set_, 0]) - float(uvs[i0, set_, 0])
+        dv1 = float(uvs[i1, set_, 1]) - float(uvs[i0, set_, 1])
+        du2 = float(uvs[i2, set_, 0]) - float(uvs[i0, set_, 0])
+        dv2 = float(uvs[i2, set_, 1]) - float(uvs[i0, set_, 1])
+        det = du1 * dv2 - du2 * dv1
+        if det == 0.0:
+            return onb_from_normal(nx, ny, nz)
+        e1x = float(positions[i1, 0]) - float(positions[i0, 0])
+        e1y = float(positions[i1, 1]) - float(positions[i0, 1])
+        e1z = float(positions[i1, 2]) - float(positions[i0, 2])
+        e2x = float(positions[i2, 0]) - float(positions[i0, 0])
+        e2y = float(positions[i2, 1]) - float(positions[i0, 1])
+        e2z = float(positions[i2, 2]) - float(positions[i0, 2])
+        tx = (dv2 * e1x - dv1 * e2x) / det
+        ty = (dv2 * e1y - dv1 * e2y) / det
+        tz = (dv2 * e1z - dv1 * e2z) / det
+        w = 1.0
+    d = tx * nx + ty * ny + tz * nz
+    tx -= d * nx
+    ty -= d * ny
+    tz -= d * nz
+    tl = math.sqrt(tx * tx + ty * ty + tz * tz)
+    if tl <= 1e-12:
+        return onb_from_normal(nx, ny, nz)
+    tx /= tl
+    ty /= tl
+    tz /= tl
+    sign = 1.0 if w >= 0.0 else -1.0
+    bx = (ny * tz - nz * ty) * sign
+    by = (nz * tx - nx * tz) * sign
+    bz = (nx * ty - ny * tx) * sign
+    rot = float(mat_table[mat, 63])
+    c = math.cos(rot)
+    s = math.sin(rot)
+    ax = c * tx + s * bx
+    ay = c * ty + s * by
+    az = c * tz + s * bz
+    # right-handed (a, n x a, n) so local coordinates match onb_from_normal's convention
+    return ax, ay, az, ny * az - nz * ay, nz * ax - nx * az, nx * ay - ny * ax

@@ -58,7 +58,7 @@ from .sampling_kernels import (
     sample_tent,
     uniform_from_state,
 )
-from .layers_kernels import volume_attenuation
+from .layers_kernels import anisotropy_frame, volume_attenuation
 from .texture_kernels import sample_slot
 
 
@@ -363,7 +363,11 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         metallic = float(mat_table[mat, 5]) * mr[2]
         roughness = float(mat_table[mat, 6]) * mr[1]
         bsdf = material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, front)
-        tx, ty, tz, bx, by, bz = onb_from_normal(snx, sny, snz)
+        if mat_table[mat, 62] > 0.0:
+            tx, ty, tz, bx, by, bz = anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2,
+                                                      mat_table, mat, snx, sny, snz)
+        else:
+            tx, ty, tz, bx, by, bz = onb_from_normal(snx, sny, snz)
         wlx = wox * tx + woy * ty + woz * tz
         wly = wox * bx + woy * by + woz * bz
         wlz = wox * snx + woy * sny + woz * snz
