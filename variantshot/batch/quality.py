@@ -91,9 +91,10 @@ class Quality:
 
 
 QUALITY_PRESETS: dict[str, Quality] = {
-    "draft": Quality("draft", long_side_px=384, spp=12, noise_target=0.35, max_depth=4),
-    "proof": Quality("proof", long_side_px=1024, spp=64, noise_target=0.15, max_depth=8),
-    "final": Quality("final", long_side_px=2048, spp=256, noise_target=0.08, max_depth=12),
+    "draft": Quality("draft", long_side_px=384, spp=24, noise_target=0.35, max_depth=4, adaptive=True, min_spp=12),
+    "proof": Quality("proof", long_side_px=1024, spp=128, noise_target=0.15, max_depth=8, adaptive=True, min_spp=16),
+    "final": Quality("final", long_side_px=2048, spp=256, noise_target=0.08, max_depth=12, adaptive=True,
+                     min_spp=16),
 }
 
 
