@@ -154,6 +154,76 @@ def test_a_shot_that_keeps_killing_workers_fails_after_the_allowed_retries():
     assert not results["b"].ok and "worker lost" in results["b"].error
 
 
+_CLIENT = r"""
+import os, sys
+from variantshot.batch.cluster import DaskExecutor
+from variantshot.batch.quality import Quality
+from variantshot.batch.runner import render_batch
+
+if __name__ == "__main__":
+    q = Quality("draft", long_side_px=16, spp=4, noise_target=1.0, max_depth=3)
+    with DaskExecutor("local:2") as ex:
+        print("workers", *ex.worker_pids().values(), flush=True)
+        r = render_batch(sys.argv[1], sys.argv[2], quality=q, templates_dir=sys.argv[3], sheet_formats=(), executor=ex)
+    print(len(r.rendered), len(r.skipped), len(r.failed), flush=True)
+"""
+
+
+def test_the_client_killed_mid_run_leaves_a_consistent_folder_and_the_next_run_resumes(demo, tmp_path):
+    _need_dask()
+    import time
+
+    from variantshot.batch.lock import LOCK_NAME
+    from variantshot.batch.manifest import entry_is_current
+
+    catalog, templates = demo
+    out = tmp_path / "out"
+    script = tmp_path / "client.py"
+    script.write_text(_CLIENT)
+    cmd = [sys.executable, str(script), str(catalog), str(out), str(templates)]
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    workers = [int(pid) for pid in proc.stdout.readline().split()[1:]]
+    assert len(workers) == 2, proc.stderr.read() if proc.poll() is not None else "no worker pids"
+    started = time.monotonic()
+    while proc.poll() is None and time.monotonic() - started < 240:
+        try:
+            if len(json.loads((out / "manifest.json").read_text())["shots"]) >= 8:
+                break
+        except (OSError, ValueError, KeyError):
+            pass
+        time.sleep(0.01)
+    assert proc.poll() is None, "the run ended before it could be killed"
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+    proc.stdout.close()
+    proc.stderr.close()
+    # as after a local run killed at the same moment: every entry recorded is a finished render
+    before = load_manifest(out)["shots"]
+    assert len(before) >= 8
+    for sid, entry in before.items():
+        assert entry_is_current(out, entry, entry["key"]), sid
+    # the local cluster's workers do not outlive their client
+    deadline = time.monotonic() + 30
+    while any(Path(f"/proc/{pid}").exists() for pid in workers) and time.monotonic() < deadline:
+        time.sleep(0.2)
+    left = [pid for pid in workers if Path(f"/proc/{pid}").exists()]
+    for pid in left:
+        os.kill(pid, signal.SIGKILL)
+    assert left == []
+
+    again = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
+    assert again.returncode == 0, again.stderr
+    rendered, skipped, failed = map(int, again.stdout.split()[-3:])
+    m = load_manifest(out)["shots"]
+    assert failed == 0 and rendered + skipped == len(m) > 40
+    assert skipped >= len(before)  # what was done before the kill is not done again
+    for sid, entry in before.items():
+        assert m[sid]["content_hash"] == entry["content_hash"], sid
+    assert all(e["status"] == "rendered" for e in m.values())
+    assert check_manifest(out) == []  # sizes, sha256, and no temporary file left
+    assert not (out / LOCK_NAME).exists()
+
+
 _BLOCK_DASK = r"""
 import sys
 class Block:
