@@ -11,6 +11,15 @@ Atlas layout (built by ``textures.py``):
 
 UV (0, 0) is the top-left corner of the image (glTF 2.0 §3.8.4.1 "Images"); texel row 0 is
 the top row.
+
+Minification rule (the documented simpler rule in place of mip selection by ray footprint):
+every lookup reads level 0 (bilinear, or nearest for magFilter NEAREST) and ignores the
+sampler's minFilter; there are no mip levels.  A pixel's many samples are spread over its
+footprint by the tent pixel filter (Sobol'-stratified), so the pixel converges to the
+texture's average over the footprint -- what a box-filtered mip lookup approximates -- at the
+price of more noise on strongly minified, high-contrast textures at low spp.  Glossy and
+diffuse bounces read level 0 as well.  ``occlusionTexture`` is not read at all: a path tracer
+computes the occlusion it stands for.
 """
 
 from __future__ import annotations
