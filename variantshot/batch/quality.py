@@ -4,21 +4,25 @@ A preset says how big and how clean a shot is rendered; :class:`OutputSpec` says
 made from that one render (formats and extra sizes).  Both are frozen, hashable dataclasses that
 enter every shot's cache key.
 
-========= ========================= ======= ============ ========
-preset    longer side (px)          spp     noise target denoise
-========= ========================= ======= ============ ========
-draft     384                       12      0.35         yes*
-proof     1024                      64      0.15         yes*
-final     2048                      256     0.08         yes*
-========= ========================= ======= ============ ========
+========= ========================= =========== ============ ========
+preset    longer side (px)          spp         noise target denoise
+========= ========================= =========== ============ ========
+draft     384                       12 .. 24    0.35         yes
+proof     1024                      16 .. 128   0.15         yes
+final     2048                      16 .. 256   0.08         yes
+========= ========================= =========== ============ ========
 
-\\* once a denoiser exists (``variantshot.imaging.denoise``); until then the flag is ignored.
+Sampling is adaptive: every pixel takes the first count, then each 8 x 8 tile stops as soon as
+its relative standard error (raw film, before denoising) is at or below the noise target; the
+second count is the cap.  QA's ``noise`` check measures the same raw film against the same
+target (``review.qa``: warn above it, fail above twice it), so a shot that converged passes and
+only tiles that hit the cap can make it warn.
 
 ``final`` is at least 2000 px on the longer side: marketplaces ask for 1000-1600 px or more so
 that zoom works, and 2000 px masters are usual (common practice, no source).  ``draft`` is sized
 so that the bundled demo catalog renders in under three minutes on two cores.  The noise targets
-are the relative standard error the path tracer reaches at that sample count on the demo products
-without a denoiser (it falls as 1/sqrt(spp): about 0.25 at 12 spp); QA warns above the target.
+were first chosen as the relative standard error the path tracer reaches at the old fixed counts
+(12, 64, 256 spp) on the demo products (it falls as 1/sqrt(spp): about 0.22 at 12 spp).
 """
 
 from __future__ import annotations
