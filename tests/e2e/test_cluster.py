@@ -132,8 +132,10 @@ def test_a_worker_killed_mid_run_every_shot_completes_once(tiny_draft, demo, tmp
             (tmp_path / "local" / "shots" / f"{sid}.png").read_bytes()
 
 
-def test_a_shot_that_keeps_killing_workers_fails_after_the_allowed_retries():
+def test_a_shot_that_keeps_killing_workers_fails_after_the_allowed_retries_and_worker_logs_reach_the_client(caplog):
     _need_dask()
+    import logging
+    import time
     from variantshot.batch.cluster import DaskExecutor
 
     class Task:
@@ -146,12 +148,19 @@ def test_a_shot_that_keeps_killing_workers_fails_after_the_allowed_retries():
 
         if task.shot_id == "b":
             os._exit(9)  # the worker process dies mid-shot, every time
+        logging.getLogger("variantshot.batch.runner").warning("shot %s logged on pid %d", task.shot_id, os.getpid())
         return ShotResult(task.shot_id, True)
 
+    caplog.set_level(logging.INFO, logger="variantshot")
     with DaskExecutor("local:2", retries=1) as executor:
         results = {r.shot_id: r for r in executor.map(die_on_b, [Task("a"), Task("b"), Task("c")])}
+        deadline = time.monotonic() + 10  # forwarded records arrive as scheduler events
+        while "shot c logged" not in caplog.text and time.monotonic() < deadline:
+            time.sleep(0.05)
     assert results["a"].ok and results["c"].ok
     assert not results["b"].ok and "worker lost" in results["b"].error
+    assert "shot a logged on pid" in caplog.text and "shot c logged on pid" in caplog.text
+    assert f"pid {os.getpid()}" not in caplog.text  # they came from the workers
 
 
 _CLIENT = r"""

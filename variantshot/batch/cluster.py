@@ -39,6 +39,7 @@ from __future__ import annotations
 import logging
 import os
 import re
+import threading
 import time
 import uuid
 from dataclasses import dataclass
@@ -118,6 +119,9 @@ def require_distributed():
 # --------------------------------------------------------------------------- on the worker
 
 _WARM = {"pid": None}
+# One shot at a time per worker process (DESIGN.md: one shot per process, numba on all its
+# cores), even when a worker was started with more than one Dask thread.
+_SHOT_LOCK = threading.Lock()
 
 
 def _fingerprint() -> str:
@@ -127,23 +131,31 @@ def _fingerprint() -> str:
     return f"variantshot {__version__}+{_jit._kernel_sources_hash()}"
 
 
-def run_on_worker(fn: Callable, task, fingerprint: str):
+def run_on_worker(fn: Callable, task, fingerprint: str, log_level: int | None = None):
     """What a Dask task runs: check the worker's variantshot matches the client's, warm the
-    kernels once per process (outside the shot's timing), then ``fn(task)``."""
+    kernels once per process (outside the shot's timing), then ``fn(task)``.
+
+    ``log_level`` is the client's level for the ``variantshot`` loggers; records at that level
+    are forwarded to the client (``Client.forward_logging``), so a cluster run logs what a local
+    run logs.
+    """
+    if log_level is not None:
+        logging.getLogger("variantshot").setLevel(log_level)
     mine = _fingerprint()
     if mine != fingerprint:
         from .runner import ShotResult
 
         return ShotResult(task.shot_id, False, error=f"worker has {mine}, the client {fingerprint}: install the "
                           "same variantshot on every worker")
-    if _WARM["pid"] != os.getpid():
-        from .. import _jit
-        from .runner import warmup
+    with _SHOT_LOCK:
+        if _WARM["pid"] != os.getpid():
+            from .. import _jit
+            from .runner import warmup
 
-        _jit.set_threads(task.threads)
-        warmup()
-        _WARM["pid"] = os.getpid()
-    return fn(task)
+            _jit.set_threads(getattr(task, "threads", None))
+            warmup()
+            _WARM["pid"] = os.getpid()
+        return fn(task)
 
 
 # --------------------------------------------------------------------------- on the client
@@ -210,6 +222,11 @@ class DaskExecutor:
         except Exception:  # noqa: BLE001 - the dashboard is a convenience only
             self.dashboard_link = None
         self._fingerprint = _fingerprint()
+        self._log_level = logging.getLogger("variantshot").getEffectiveLevel()
+        try:
+            self.client.forward_logging("variantshot", level=self._log_level)
+        except Exception:  # noqa: BLE001 - older distributed: worker logs stay on the workers
+            log.debug("worker logs are not forwarded (distributed too old)")
 
     # The window follows the cluster as workers join and leave.
     def _window(self) -> int:
@@ -242,7 +259,7 @@ class DaskExecutor:
                 window, last_window = self._window(), time.monotonic()
             while todo and len(futures) < window:
                 t = todo.pop()
-                f = self.client.submit(run_on_worker, fn, t, self._fingerprint, pure=False,
+                f = self.client.submit(run_on_worker, fn, t, self._fingerprint, self._log_level, pure=False,
                                        key=f"shot-{t.shot_id}-{run}")
                 futures[f.key] = (f, t)
                 ac.add(f)

@@ -46,6 +46,11 @@ def run_batch(catalog: Path, out: Path, *, quality: str, only, force: bool, work
         executor = make_executor(workers, cluster)
         if cluster and not quiet:
             link = getattr(executor, "dashboard_link", None)
+            if link and cluster.startswith("local:"):
+                import importlib.util
+
+                if importlib.util.find_spec("bokeh") is None:
+                    link += " (its pages need: pip install bokeh)"
             _console.error(f"cluster {cluster}: {len(executor.worker_pids())} worker(s)"
                            + (f", dashboard {link}" if link else ""))
 
