@@ -268,6 +268,13 @@ def test_a_bad_cluster_value_exits_2_naming_it(value, demo, tmp_path):
     assert not (tmp_path / "out").exists()
 
 
+def test_workers_and_cluster_together_exit_2(demo, tmp_path):
+    catalog, templates = demo
+    r = _render(catalog, templates, tmp_path / "out", "--cluster", "local:2", "--workers", "2")
+    assert r.exit_code == 2 and "--workers and --cluster" in r.stderr
+    assert not (tmp_path / "out").exists()
+
+
 def test_cluster_addresses_parse():
     from variantshot.batch.cluster import ClusterSpec, parse_cluster
 
