@@ -80,6 +80,36 @@ def test_two_worker_cluster_renders_the_demo_bit_identical_to_a_local_run(tiny_d
     assert [line for line in again.stdout.splitlines() if line.startswith("{")] == []
 
 
+def test_an_existing_scheduler_by_address_gives_the_local_bytes(tiny_draft, demo, tmp_path):
+    _need_dask()
+    from distributed import LocalCluster
+
+    catalog, templates = demo
+    only = ["--only", "TT-MUG350-OAT-GZ--*", "--format", "png,jpg"]
+    local = _render(catalog, templates, tmp_path / "local", *only)
+    assert local.exit_code in (0, 1), local.output
+    # a scheduler this run did not start, reached by its tcp:// address
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+        assert cluster.scheduler_address.startswith("tcp://")
+        r = _render(catalog, templates, tmp_path / "remote", *only, "--cluster", cluster.scheduler_address)
+        assert len(cluster.workers) == 1  # still running: the client did not stop a cluster it did not start
+    assert r.exit_code == local.exit_code, r.output
+    assert f"cluster {cluster.scheduler_address}: 1 worker(s)" in r.stderr
+    a, b = _shot_bytes(tmp_path / "local"), _shot_bytes(tmp_path / "remote")
+    assert len(a) == 6 and a == b  # 3 angles x (png, jpg), byte for byte
+
+
+def test_a_worker_with_another_variantshot_refuses_the_shot():
+    from variantshot.batch.cluster import _fingerprint, run_on_worker
+
+    class Task:
+        shot_id, threads = "A--front", None
+
+    result = run_on_worker(lambda task: None, Task(), "variantshot 0.0.0+0000")
+    assert not result.ok
+    assert "variantshot 0.0.0+0000" in result.error and _fingerprint() in result.error
+
+
 def test_a_worker_killed_mid_run_every_shot_completes_once(tiny_draft, demo, tmp_path):
     _need_dask()
     from variantshot.batch.cluster import DaskExecutor
