@@ -99,6 +99,39 @@ def test_an_existing_scheduler_by_address_gives_the_local_bytes(tiny_draft, demo
     assert len(a) == 6 and a == b  # 3 angles x (png, jpg), byte for byte
 
 
+def test_a_lost_scheduler_stops_the_batch_with_a_clear_error_and_a_consistent_folder(demo, tmp_path):
+    _need_dask()
+    import threading
+
+    from distributed import LocalCluster
+
+    from variantshot.batch.cluster import DaskExecutor
+    from variantshot.batch.lock import LOCK_NAME
+    from variantshot.batch.runner import render_batch
+    from variantshot.errors import RenderError
+
+    catalog, templates = demo
+    cluster = LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None)
+    executor = DaskExecutor(cluster.scheduler_address)
+    done: list = []
+
+    def on_shot(entry):
+        done.append(entry["id"])
+        if len(done) == 3:
+            threading.Thread(target=cluster.close).start()  # the scheduler goes away mid-run
+
+    try:
+        with pytest.raises(RenderError, match="lost the Dask scheduler"):
+            render_batch(catalog, tmp_path / "out", quality=TINY, templates_dir=templates, sheet_formats=(),
+                         executor=executor, on_shot=on_shot)
+    finally:
+        executor.close()
+        cluster.close()
+    m = load_manifest(tmp_path / "out")["shots"]
+    assert 3 <= len(m) < 40 and check_manifest(tmp_path / "out") == []
+    assert not (tmp_path / "out" / LOCK_NAME).exists()
+
+
 def test_a_worker_with_another_variantshot_refuses_the_shot():
     from variantshot.batch.cluster import _fingerprint, run_on_worker
 

@@ -36,6 +36,8 @@ local run.  ``dask`` is imported only inside this module's functions.
 
 from __future__ import annotations
 
+import asyncio
+import concurrent.futures
 import logging
 import os
 import re
@@ -247,6 +249,8 @@ class DaskExecutor:
         lost more often than allowed, or whose task raised, yields a failed result."""
         from distributed import as_completed
 
+        from ..errors import RenderError
+
         todo = list(tasks)[::-1]  # pop() from the end keeps the plan's order
         run = f"{uuid.uuid4().hex[:8]}"
         futures: dict = {}
@@ -270,13 +274,25 @@ class DaskExecutor:
                 _, task = futures.pop(f.key)
                 try:
                     result = f.result()
+                except (concurrent.futures.CancelledError, asyncio.CancelledError) as exc:
+                    # only the scheduler cancels our tasks: it is gone, stop the batch here (what
+                    # finished is recorded; the next run resumes from it)
+                    raise RenderError(f"--cluster {self.spec}: lost the Dask scheduler ({exc}); the output "
+                                      "folder is consistent, run again to resume") from None
                 except Exception as exc:  # noqa: BLE001 - this shot fails, the batch goes on
                     result = self._failed(task, exc)
-                submit_more()
+                try:
+                    submit_more()
+                except Exception as exc:  # noqa: BLE001 - the client was closed under us
+                    raise RenderError(f"--cluster {self.spec}: cannot submit shots ({type(exc).__name__}: {exc}); "
+                                      "run again to resume") from None
                 yield result
         finally:
             for f, _ in futures.values():
-                f.cancel()
+                try:
+                    f.cancel()
+                except Exception:  # noqa: BLE001 - a closed client has nothing left to cancel
+                    pass
 
     def _failed(self, task, exc):
         from .runner import ShotResult
@@ -293,6 +309,8 @@ class DaskExecutor:
         """Disconnect; for ``local:N`` stop the workers and the scheduler too."""
         try:
             self.client.close()
+        except Exception:  # noqa: BLE001 - already closed after a lost scheduler
+            log.debug("closing the Dask client failed", exc_info=True)
         finally:
             if self.cluster is not None:
                 self.cluster.close()
