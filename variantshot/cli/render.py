@@ -107,6 +107,8 @@ def render(
     version) changed; --force and --only widen or narrow the run. Files are written atomically
     and the manifest after every shot, so a killed run resumes where it stopped. Exit status 0
     all done; 1 some shots failed to render or failed QA; 2 bad input; 3 another run holds OUT.
+    With --cluster the shots render on Dask workers (no shared file system needed); this
+    process still writes every file and the manifest, so OUT behaves as in a local run.
 
     Example: variantshot render catalog/demo.csv --out out/ --quality proof --format png,jpg --sizes 1000
     """
