@@ -301,7 +301,7 @@ import sys
 class Block:
     def find_spec(self, name, path=None, target=None):
         if name.split(".")[0] in ("dask", "distributed"):
-            raise ImportError(f"No module named {name!r} (blocked by the test)")
+            raise ModuleNotFoundError(f"No module named {name!r} (blocked by the test)", name=name)
         return None
 sys.meta_path.insert(0, Block())
 from variantshot.cli.main import app
