@@ -132,6 +132,16 @@ def test_a_lost_scheduler_stops_the_batch_with_a_clear_error_and_a_consistent_fo
     assert not (tmp_path / "out" / LOCK_NAME).exists()
 
 
+def test_an_unreachable_scheduler_is_named():
+    _need_dask()
+    from variantshot.batch.cluster import DaskExecutor
+    from variantshot.errors import RenderError
+
+    # port 9 (discard) has no Dask scheduler on a test machine (IANA service registry)
+    with pytest.raises(RenderError, match=r"tcp://127\.0\.0\.1:9: cannot reach the Dask scheduler"):
+        DaskExecutor("tcp://127.0.0.1:9", connect_timeout_s=2)
+
+
 def test_a_worker_with_another_variantshot_refuses_the_shot():
     from variantshot.batch.cluster import _fingerprint, run_on_worker
 
