@@ -180,3 +180,20 @@ def test_brushed_metal_stretches_the_highlight_along_the_tangent():
     assert sx_x > 2 * sy_x and sy_y > 2 * sx_y, (sx_x, sy_x, sx_y, sy_y)
     assert sy_r > 2 * sx_r
     assert sy_r == pytest.approx(sy_y, rel=0.15) and sx_r == pytest.approx(sx_y, rel=0.3)
+
+
+@pytest.mark.parametrize("deg", [0.0, 60.0])
+def test_emission_under_a_clearcoat_is_scaled_by_one_minus_its_fresnel(deg):
+    # KHR_materials_clearcoat README: the coat also covers emission, emitted x (1 - cc Fc),
+    # Fc = 0.04 + 0.96 (1 - cos)^5 (Schlick, f0 of ior 1.5); black environment, black base
+    cc = 0.8
+    mat = Material(name="display", base_colour_factor=(0, 0, 0, 1), metallic_factor=0.0, roughness_factor=1.0,
+                   emissive_factor=(1.0, 0.5, 0.25), emissive_strength=2.0,
+                   extensions={"KHR_materials_specular": {"specularFactor": 0.0},
+                               "KHR_materials_clearcoat": {"clearcoatFactor": cc}})
+    p, t = quad((0, 0, 0), (5, 0, 0), (0, 5, 0))
+    th = math.radians(deg)
+    cam = camera((0, -3 * math.sin(th), 3 * math.cos(th)), (0, 0, 0), kind="orthographic", ymag=0.2)
+    film = render(make_scene(p, t, materials=[mat]), RenderSettings(width=4, height=4, spp=8, seed=2), camera=cam)
+    fc = 0.04 + 0.96 * (1 - math.cos(th)) ** 5
+    np.testing.assert_allclose(film.radiance.mean(axis=(0, 1)), np.array([2.0, 1.0, 0.5]) * (1 - cc * fc), rtol=1e-3)

@@ -91,3 +91,15 @@ def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table
     az = c * tz + s * bz
     # right-handed (a, n x a, n) so local coordinates match onb_from_normal's convention
     return ax, ay, az, ny * az - nz * ay, nz * ax - nx * az, nx * ay - ny * ax
+
+
+@njit(**KERNEL)
+def coat_emission_scale(mat_table, mat, cos_n):
+    """1 - clearcoat Fc(cos_n): emission seen through a clearcoat (KHR_materials_clearcoat README,
+    Fc Schlick with f0 = 0.04); ``cos_n`` = |geometric normal . direction| (the same on both
+    ends of a light path, so light sampling and BSDF hits agree); 1 without a coat."""
+    cc = float(mat_table[mat, 53])
+    if cc <= 0.0:
+        return 1.0
+    c = min(max(cos_n, 0.0), 1.0)
+    return 1.0 - cc * (0.04 + 0.96 * (1.0 - c) ** 5)

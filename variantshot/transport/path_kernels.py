@@ -58,7 +58,7 @@ from .sampling_kernels import (
     sample_tent,
     uniform_from_state,
 )
-from .layers_kernels import anisotropy_frame, volume_attenuation
+from .layers_kernels import anisotropy_frame, coat_emission_scale, volume_attenuation
 from .texture_kernels import sample_slot
 
 
@@ -345,6 +345,10 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         # emission reached by the path
         if front or double_sided:
             er, eg, eb = emission(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1)
+            ce = coat_emission_scale(mat_table, mat, abs(ngx * dx + ngy * dy + ngz * dz))
+            er *= ce
+            eg *= ce
+            eb *= ce
             if er > 0.0 or eg > 0.0 or eb > 0.0:
                 w = 1.0
                 if depth > 0 and not baseline and not prev_transmit:
@@ -425,6 +429,10 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                     if cos_l > 0.0 or (mat_table[lmat, 12] > 0.5 and cos_l < 0.0):
                         la = surface_attributes(positions, normals, uvs, colours, triangles, ltri, lb1, lb2)
                         li_r, li_g, li_b = emission(mat_table, lmat, tex_pixels, tex_table, la[6], la[7], la[8], la[9])
+                        ce = coat_emission_scale(mat_table, lmat, abs(cos_l))
+                        li_r *= ce
+                        li_g *= ce
+                        li_b *= ce
                         lmode = int(mat_table[lmat, 10])
                         if lmode != 0:
                             # a masked-away point is not there; a blended one emits alpha x Le on average
