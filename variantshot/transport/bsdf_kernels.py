@@ -696,12 +696,17 @@ def make_bsdf_ext(kind, base_r, base_g, base_b, metallic, roughness, ior, specul
     f0g = min(f0i * max(spec_g, 0.0), 1.0) * spec
     f0b = min(f0i * max(spec_b, 0.0), 1.0) * spec
     an = min(max(anisotropy, 0.0), 1.0)
+    # an index-matched interface (eta = 1, e.g. ior 1.0) has a degenerate refraction half vector:
+    # keep eta 1e-3 away from 1 (the lobe stays a finite, very narrow density around -wo)
+    eta_ = max(eta, 1e-3)
+    if abs(eta_ - 1.0) < 1e-3:
+        eta_ = 1.001 if eta_ >= 1.0 else 1.0 / 1.001
     ax = alpha + (1.0 - alpha) * an * an
     ca = max(clearcoat_roughness * clearcoat_roughness, ALPHA_MIN)
     sr = min(max(sheen_roughness, 0.0), 1.0)
     return (np.float64(kind), np.float64(base_r), np.float64(base_g), np.float64(base_b), m, alpha,
             max(f0r, max(f0g, f0b)), spec, f0r, f0g, f0b,
-            min(max(transmission, 0.0), 1.0), max(eta, 1e-3), 1.0 if thin > 0.5 else 0.0,
+            min(max(transmission, 0.0), 1.0), eta_, 1.0 if thin > 0.5 else 0.0,
             min(max(clearcoat, 0.0), 1.0), ca,
             max(sheen_r, 0.0), max(sheen_g, 0.0), max(sheen_b, 0.0), sr, ax, alpha)
 

@@ -416,3 +416,11 @@ def test_rough_btdf_matches_walter_2007(eta):
     want = np.where(valid, walter * eta**2, 0.0)[:, None] * base[None]
     np.testing.assert_allclose(eval_f(p, wo, wi), want, rtol=1e-9, atol=1e-12)
     assert valid.sum() > 50
+
+
+@pytest.mark.parametrize("ior", [1.0, 1.0005])
+def test_index_matched_glass_transmits_everything(ior):
+    # KHR_materials_ior lists air, 1.0: an index-matched smooth interface reflects nothing
+    # (R0 = ((n-1)/(n+1))^2 = 0, REFERENCES §6f) and transmits all the light straight on
+    refl, tran, se = albedo(layered(base=(1, 1, 1), roughness=0.0, transmission=1.0, ior=ior), 0.6)
+    assert refl[0] < 1e-3 and tran[0] == pytest.approx(1.0, abs=2e-3)
