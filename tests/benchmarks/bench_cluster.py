@@ -126,6 +126,7 @@ def main() -> None:
         "cluster_start_s": round(start_s, 1),
         "cluster_rendered": n_cluster,
         "cluster_failed": len(dist.failed),
+        "cluster_first_error": dist.failed[0][1] if dist.failed else None,
         "cluster_s": round(cluster_s, 1),
         "cluster_shots_per_min": round(60 * n_cluster / cluster_s, 1),
         "speedup": round(local_s / cluster_s, 2) if cluster_s else None,

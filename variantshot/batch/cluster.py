@@ -38,6 +38,7 @@ from __future__ import annotations
 
 import asyncio
 import concurrent.futures
+import functools
 import logging
 import os
 import re
@@ -126,8 +127,10 @@ _WARM = {"pid": None}
 _SHOT_LOCK = threading.Lock()
 
 
+@functools.lru_cache(maxsize=1)
 def _fingerprint() -> str:
-    """``variantshot X.Y.Z+<kernel sources hash>``: what must agree between client and workers."""
+    """``variantshot X.Y.Z+<kernel sources hash>``: what must agree between client and workers
+    (computed once per process, when it first renders or submits, as the code it runs)."""
     from .. import __version__, _jit
 
     return f"variantshot {__version__}+{_jit._kernel_sources_hash()}"
