@@ -378,7 +378,7 @@ def _render_shot(task: ShotTask) -> ShotResult:
         images.append(ImageOut(rel, fmt, src_rgb.shape[1], src_rgb.shape[0], data))
     t_encode = time.perf_counter()
 
-    qa = _run_qa(task, images[0], coverage, film)
+    qa = _run_qa(task, images[0], coverage, film, shadow)
     metrics = {
         "load_s": round(t_load - t0, 4),
         "render_s": round(t_render - t_load, 4),
@@ -449,7 +449,7 @@ def _maybe_denoise(film, threads=None):
     return denoise.denoise_film(film, threads=threads)
 
 
-def _run_qa(task: ShotTask, primary: ImageOut, coverage, film) -> dict | None:
+def _run_qa(task: ShotTask, primary: ImageOut, coverage, film, shadow=None) -> dict | None:
     """QA of the primary image through ``review.qa.run_qa``, as the manifest's ``qa`` object."""
     try:
         from ..review.qa import run_qa
@@ -472,6 +472,8 @@ def _run_qa(task: ShotTask, primary: ImageOut, coverage, film) -> dict | None:
         coverage=coverage,
         film=film,
         background=task.output.background,
+        # purity is judged outside the shadow the compositor applied, not a guessed zone
+        shadow=shadow if shadow is not None and shadow.shape == codes.shape[:2] else None,
         colour_lab_d65=task.colour_lab_d65,
         swatch_srgb8=swatch,
         noise_target=task.quality.noise_target,

@@ -120,6 +120,17 @@ class QASettings:
             raise ValueError(f"QASettings: noise_target must be > 0, got {self.noise_target}")
 
 
+def _grow(mask: np.ndarray) -> np.ndarray:
+    """``mask`` dilated by one pixel (8-neighbourhood)."""
+    padded = np.pad(mask, 1)
+    h, w = mask.shape
+    out = np.zeros_like(mask)
+    for dy in (0, 1, 2):
+        for dx in (0, 1, 2):
+            out |= padded[dy:dy + h, dx:dx + w]
+    return out
+
+
 @dataclass(frozen=True)
 class Check:
     """One QA check: its name, verdict, measured figure, the limit it was judged by, a message."""
@@ -332,7 +343,10 @@ def run_qa(
             shadow = np.asarray(shadow, dtype=np.float64)
             if shadow.shape != hw:
                 raise ValueError(f"run_qa: shadow {shadow.shape} does not match the image {hw}")
-            zone = mask | (shadow < 1.0)
+            # the product (any coverage, with a 1-pixel guard band for its anti-aliased edge)
+            # and the shadow the compositor applied; everything else must be exactly white
+            touched = mask if coverage is None else np.asarray(coverage, dtype=np.float64) > 0
+            zone = _grow(touched | mask) | (shadow < 1.0)
         else:
             zone = metrics.shadow_zone(mask, s.shadow_margin_frac) | mask
         purity = metrics.white_purity(rgb, zone)
