@@ -43,6 +43,15 @@ def run_batch(catalog: Path, out: Path, *, quality: str, only, force: bool, work
         output = OutputSpec(formats=parse_formats(formats), sizes=parse_sizes(sizes) if sizes else ())
         if background is not None:
             output = output.replace(background=background)
+        if cluster:  # Dask's own INFO chatter (workers joining, comms closing) is not ours to print
+            import logging
+
+            try:
+                import distributed  # noqa: F401 - it sets its loggers' levels when imported
+            except ImportError:
+                pass  # make_executor says what to install
+            for name in ("distributed", "tornado", "bokeh"):
+                logging.getLogger(name).setLevel(logging.WARNING)
         executor = make_executor(workers, cluster)
         if cluster and not quiet:
             link = getattr(executor, "dashboard_link", None)
