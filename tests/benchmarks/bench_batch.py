@@ -70,6 +70,8 @@ def main(argv=None) -> dict:
             "shots_per_hour": round(3600.0 / float(secs.mean()), 1) if rendered else 0.0,
             "qa": {s: qa.count(s) for s in sorted(set(map(str, qa)))},
             "qa_noise_median": round(float(np.median(noise)), 4) if noise else None,
+            "qa_not_pass": {e["id"]: [c["name"] for c in e["qa"]["checks"] if c["status"] != "pass"]
+                            for e in rendered if (e.get("qa") or {}).get("status") not in (None, "pass")},
         }
     if "final" in result:
         result["final_shot_within_90s"] = result["final"]["max_shot_s"] <= 90.0
