@@ -119,7 +119,8 @@ def trace(
         write_image(output, radiance, exposure_ev=exposure, tone=tone, seed=seed, **fmt_options)
         seconds = time.perf_counter() - started
     if not quiet:
-        _console.error(f"{output}: {width}x{height}, {spp} spp, {seconds:.2f} s")
+        samples = f"{spp} spp" if film.spp_map is None else f"{film.mean_spp:.1f} spp on average (cap {spp})"
+        _console.error(f"{output}: {width}x{height}, {samples}, {seconds:.2f} s")
 
 
 def _denoised(film, threads):
