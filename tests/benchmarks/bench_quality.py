@@ -16,7 +16,8 @@ high-sample full-mode reference of the same run:
 ``rel_rmse = sqrt(mean((x - ref)^2) - mean(var_ref)) / mean(ref)`` (the reference's own noise,
 from its film variance, is subtracted).  For each mode the trial errors are fitted against
 seconds on a log-log line and the time at 2 % read off (interpolated when 2 % lies inside the
-trials, else extrapolated: said in the output).  Prints ONE JSON line.
+trials, else extrapolated: said in the output); trials whose error is below half the
+reference's own relative noise are reported but not fitted (not measurable).  Prints ONE JSON line.
 
     python tests/benchmarks/bench_quality.py [--size 256] [--ref-spp 1024] [--threads 2]
 
@@ -106,6 +107,8 @@ def main(argv=None) -> dict:
     ref_mean = float(ref.radiance[score].mean())
     ref_var = float(ref.variance[score].mean())
 
+    ref_rel_noise = math.sqrt(ref_var) / ref_mean  # errors well below this are not measurable
+
     def rel_rmse(rgb):
         mse = float(np.mean((rgb[score] - ref.radiance[score]) ** 2)) - ref_var
         return math.sqrt(max(mse, 0.0)) / ref_mean
@@ -114,6 +117,7 @@ def main(argv=None) -> dict:
               "threads": args.threads, "load_avg_1min": round(os.getloadavg()[0], 2),
               "triangles": int(scene.n_triangles), "sampled_fraction": round(float(mask.mean()), 3),
               "scored_pixels": int(score.sum()), "ref_spp": args.ref_spp, "ref_s": round(ref_s, 1),
+              "ref_rel_noise": round(ref_rel_noise, 5),
               "denoiser": bool(denoise.is_available()), "coverage_s": round(cover_s, 2)}
     trials = {
         "baseline": [(dataclasses.replace(base, spp=n, seed=100 + k, mode="baseline", wave_spp=16), False)
@@ -128,15 +132,23 @@ def main(argv=None) -> dict:
             rows.append({"spp": settings.spp if settings.noise_target is None else None,
                          "noise_target": settings.noise_target, "mean_spp": round(float(film.spp_map[mask].mean()), 1),
                          "seconds": round(s, 2), "rel_rmse": round(rel_rmse(rgb), 5)})
-        secs = np.array([r["seconds"] for r in rows])
-        errs = np.array([max(r["rel_rmse"], 1e-6) for r in rows])
-        slope, intercept = np.polyfit(np.log(secs), np.log(errs), 1)
-        t2 = float(np.exp((math.log(0.02) - intercept) / slope)) if slope < 0 else math.inf
-        inside = errs.min() <= 0.02 <= errs.max()
-        result[mode] = {"trials": rows, "slope_err_vs_time": round(float(slope), 3),
-                        "seconds_to_2pct": round(t2, 2), "seconds_to_2pct_is": "interpolated" if inside else "extrapolated"}
+        for r in rows:
+            r["measurable"] = r["rel_rmse"] > 0.5 * ref_rel_noise
+        used = [r for r in rows if r["measurable"]] or rows
+        secs = np.array([r["seconds"] for r in used])
+        errs = np.array([max(r["rel_rmse"], 1e-6) for r in used])
+        if len(used) >= 2:
+            slope, intercept = np.polyfit(np.log(secs), np.log(errs), 1)
+            t2 = float(np.exp((math.log(0.02) - intercept) / slope)) if slope < 0 else None
+            inside = bool(errs.min() <= 0.02 <= errs.max())
+            slope = round(float(slope), 3)
+        else:
+            slope, t2, inside = None, None, False
+        result[mode] = {"trials": rows, "slope_err_vs_time": slope,
+                        "seconds_to_2pct": None if t2 is None else round(t2, 2),
+                        "seconds_to_2pct_is": "interpolated" if inside else "extrapolated"}
     a, b = result["baseline"]["seconds_to_2pct"], result["full"]["seconds_to_2pct"]
-    result["ratio_baseline_over_full"] = round(a / b, 2) if b > 0 and math.isfinite(a) else None
+    result["ratio_baseline_over_full"] = round(a / b, 2) if a and b else None
     result["goal_ratio_ge_5"] = bool(result["ratio_baseline_over_full"] and result["ratio_baseline_over_full"] >= 5)
     print(json.dumps(result))
     return result

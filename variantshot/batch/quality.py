@@ -38,6 +38,12 @@ from ..errors import InputError
 __all__ = ["Quality", "QUALITY_PRESETS", "quality_preset", "OutputSpec", "BACKGROUNDS", "IMAGE_FORMATS", "parse_formats", "parse_sizes"]
 
 BACKGROUNDS = ("white", "transparent", "backdrop")
+
+#: Adaptive renders stop tiles at this fraction of the preset's noise target: QA's statistic
+#: (median over product pixels of each pixel's relative standard error) can come out a few
+#: per cent above the pooled 8 x 8 tile figure the render stops on, and a converged shot must
+#: pass QA's check at the full target.
+ADAPTIVE_TARGET_FRACTION = 0.9
 IMAGE_FORMATS = ("png", "jpg", "webp")
 
 
@@ -57,8 +63,9 @@ class Quality:
         uses the same count and seed, so their noise is correlated).
     noise_target : float
         Relative standard error of the raw film (before denoising) the preset aims at.  With
-        ``adaptive`` it is the render's stopping target (``RenderSettings.noise_target``: 8 x 8
-        tiles stop once their luminance's relative standard error is at or below it, and
+        ``adaptive`` it sets the render's stopping target (``RenderSettings.noise_target`` =
+        ``ADAPTIVE_TARGET_FRACTION`` x this: 8 x 8 tiles stop once their luminance's relative
+        standard error is at or below it, and
         ``spp`` is only the cap); QA's ``noise`` check measures the same film against the same
         number, so a shot that converged passes and one that hit the cap warns.
     adaptive : bool

@@ -137,7 +137,9 @@ def _render_settings(quality: Quality, threads=None, **changes):
     kw = dict(width=quality.width, height=quality.height, spp=quality.spp, seed=quality.seed,
               max_depth=quality.max_depth, threads=threads)
     if quality.adaptive:  # the preset's noise target stops converged tiles; spp is the cap
-        kw.update(noise_target=quality.noise_target, adaptive_min_spp=quality.min_spp)
+        from .quality import ADAPTIVE_TARGET_FRACTION
+
+        kw.update(noise_target=ADAPTIVE_TARGET_FRACTION * quality.noise_target, adaptive_min_spp=quality.min_spp)
     kw.update(changes)
     return RenderSettings(**kw)
 

@@ -205,6 +205,10 @@ def render(
         end = min(total, done + settings.wave_spp)
         if adaptive and done < settings.adaptive_min_spp:
             end = min(end, settings.adaptive_min_spp)
+        elif adaptive:
+            # waves of about 1/4 of the count so far (2 .. wave_spp): a tile overshoots its
+            # target by at most ~25 % of its samples
+            end = min(total, done + max(2, min(settings.wave_spp, done // 4)))
         opts = np.array(
             [width, height, done, end, settings.seed, settings.max_depth,
              1 if settings.mode == "baseline" else 0, 1 if has_env else 0, 1 if has_alpha else 0],
