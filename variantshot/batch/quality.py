@@ -8,13 +8,13 @@ enter every shot's cache key.
 preset    longer side (px)          spp         noise target denoise
 ========= ========================= =========== ============ ========
 draft     384                       12 .. 24    0.35         yes
-proof     1024                      12 .. 128   0.20         yes
-final     2048                      12 .. 256   0.15         yes
+proof     1024                      12 .. 128   0.22         yes
+final     2048                      12 .. 256   0.165        yes
 ========= ========================= =========== ============ ========
 
 Sampling is adaptive: every pixel takes the first count, then each 8 x 8 tile stops as soon as
-its relative standard error (raw film, before denoising) is at or below the noise target; the
-second count is the cap.  QA's ``noise`` check measures the same raw film against the same
+its relative standard error (raw film, before denoising) is at or below 0.9 x the noise target
+(``ADAPTIVE_TARGET_FRACTION``; final: 0.1485, proof: 0.198); the second count is the cap.  QA's ``noise`` check measures the same raw film against the same
 target (``review.qa``: warn above it, fail above twice it), so a shot that converged passes and
 only tiles that hit the cap can make it warn.
 
@@ -105,8 +105,8 @@ class Quality:
 
 QUALITY_PRESETS: dict[str, Quality] = {
     "draft": Quality("draft", long_side_px=384, spp=24, noise_target=0.35, max_depth=4, adaptive=True, min_spp=12),
-    "proof": Quality("proof", long_side_px=1024, spp=128, noise_target=0.2, max_depth=8, adaptive=True, min_spp=12),
-    "final": Quality("final", long_side_px=2048, spp=256, noise_target=0.15, max_depth=12, adaptive=True,
+    "proof": Quality("proof", long_side_px=1024, spp=128, noise_target=0.22, max_depth=8, adaptive=True, min_spp=12),
+    "final": Quality("final", long_side_px=2048, spp=256, noise_target=0.165, max_depth=12, adaptive=True,
                      min_spp=12),
 }
 
