@@ -16,7 +16,7 @@ high-sample full-mode reference of the same run:
 ``rel_rmse = sqrt(mean((x - ref)^2) - mean(var_ref)) / mean(ref)`` (the reference's own noise,
 from its film variance, is subtracted).  For each mode the trial errors are fitted against
 seconds on a log-log line and the time at 2 % read off (interpolated when 2 % lies inside the
-trials, else extrapolated: said in the output); trials whose error is below half the
+trials, else extrapolated: said in the output); trials whose error is below a fifth of the
 reference's own relative noise are reported but not fitted (not measurable).  Prints ONE JSON line.
 
     python tests/benchmarks/bench_quality.py [--size 256] [--ref-spp 1024] [--threads 2]
@@ -133,7 +133,7 @@ def main(argv=None) -> dict:
                          "noise_target": settings.noise_target, "mean_spp": round(float(film.spp_map[mask].mean()), 1),
                          "seconds": round(s, 2), "rel_rmse": round(rel_rmse(rgb), 5)})
         for r in rows:
-            r["measurable"] = r["rel_rmse"] > 0.5 * ref_rel_noise
+            r["measurable"] = r["rel_rmse"] > 0.2 * ref_rel_noise
         used = [r for r in rows if r["measurable"]] or rows
         secs = np.array([r["seconds"] for r in used])
         errs = np.array([max(r["rel_rmse"], 1e-6) for r in used])
