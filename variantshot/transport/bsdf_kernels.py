@@ -574,45 +574,11 @@ def pdf_f(bsdf, wox, woy, woz, wix, wiy, wiz):
 
 @njit(**KERNEL)
 def sample_vndf(alpha, wox, woy, woz, u0, u1):
-    """A GGX visible normal for view wo (Heitz 2018, JCGT 7(4), listing 1); returns (hx, hy, hz)."""
-    vx = alpha * wox
-    vy = alpha * woy
-    vz = woz
-    vl = math.sqrt(vx * vx + vy * vy + vz * vz)
-    vx /= vl
-    vy /= vl
-    vz /= vl
-    lensq = vx * vx + vy * vy
-    if lensq > 0.0:
-        inv = 1.0 / math.sqrt(lensq)
-        t1x = -vy * inv
-        t1y = vx * inv
-        t1z = 0.0
-    else:
-        t1x = 1.0
-        t1y = 0.0
-        t1z = 0.0
-    # T2 = V x T1
-    t2x = vy * t1z - vz * t1y
-    t2y = vz * t1x - vx * t1z
-    t2z = vx * t1y - vy * t1x
-    r = math.sqrt(u0)
-    phi = 2.0 * math.pi * u1
-    p1 = r * math.cos(phi)
-    p2 = r * math.sin(phi)
-    s = 0.5 * (1.0 + vz)
-    p2 = (1.0 - s) * math.sqrt(max(0.0, 1.0 - p1 * p1)) + s * p2
-    p3 = math.sqrt(max(0.0, 1.0 - p1 * p1 - p2 * p2))
-    nx = p1 * t1x + p2 * t2x + p3 * vx
-    ny = p1 * t1y + p2 * t2y + p3 * vy
-    nz = p1 * t1z + p2 * t2z + p3 * vz
-    hx = alpha * nx
-    hy = alpha * ny
-    hz = max(0.0, nz)
-    hl = math.sqrt(hx * hx + hy * hy + hz * hz)
-    if hl <= 0.0:
-        return 0.0, 0.0, 1.0
-    return hx / hl, hy / hl, hz / hl
+    """A GGX visible normal for view wo (Heitz 2018, JCGT 7(4), listing 1); returns (hx, hy, hz).
+
+    The isotropic case of :func:`sample_vndf_aniso`.
+    """
+    return sample_vndf_aniso(alpha, alpha, wox, woy, woz, u0, u1)
 
 
 @njit(**KERNEL)
