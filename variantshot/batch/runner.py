@@ -441,14 +441,10 @@ def _sample_mask(coverage: np.ndarray, margin_px: int = 16) -> np.ndarray:
 
 
 def _maybe_denoise(film, threads=None):
-    """``imaging.denoise.denoise_film`` when the denoiser can run here; the raw radiance otherwise."""
-    try:
-        from ..imaging import denoise
-    except ImportError:
-        return film.radiance
-    if not denoise.is_available():
-        return film.radiance
-    return denoise.denoise_film(film, threads=threads)
+    """The film denoised with its albedo and normal passes (raw radiance where no denoiser runs)."""
+    from ..imaging.denoise import denoise_film_if_available
+
+    return denoise_film_if_available(film, threads=threads)
 
 
 def _run_qa(task: ShotTask, primary: ImageOut, coverage, film, shadow=None) -> dict | None:

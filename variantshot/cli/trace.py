@@ -123,15 +123,11 @@ def trace(
         _console.error(f"{output}: {width}x{height}, {samples}, {seconds:.2f} s")
 
 
-def _denoised(film, threads):
-    """The film denoised with its albedo and normal passes, or the raw radiance without a denoiser."""
-    try:
-        from ..imaging import denoise
-    except ImportError:
-        return film.radiance
-    if not denoise.is_available():
-        return film.radiance
-    return denoise.denoise_film(film, threads=threads)
+def _denoised(film, threads=None):
+    """The film denoised with its albedo and normal passes (raw radiance where no denoiser runs)."""
+    from ..imaging.denoise import denoise_film_if_available
+
+    return denoise_film_if_available(film, threads=threads)
 
 
 def _apply_rig(scene, name: str, settings):

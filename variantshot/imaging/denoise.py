@@ -390,3 +390,14 @@ def denoise_film(film, *, threads: int | None = None, quality: str = "high", **o
             keep = miss[..., None] & np.isfinite(src)
             out = np.where(keep, src, out)
     return out
+
+
+def denoise_film_if_available(film, *, threads: int | None = None) -> np.ndarray:
+    """:func:`denoise_film` where the denoiser can run here; the film's raw radiance otherwise.
+
+    The one call the batch and ``trace`` make: a machine without a ``pyoidn`` wheel still
+    renders, undenoised (``is_available`` has already logged why).
+    """
+    if not is_available():
+        return film.radiance
+    return denoise_film(film, threads=threads)
