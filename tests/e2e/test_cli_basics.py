@@ -29,3 +29,12 @@ def test_help_does_not_import_numba():
     code = "import sys; from variantshot.cli.main import app; import variantshot; print('numba' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
+
+
+def test_demo_passes_cluster_through_and_rejects_a_bad_address(tmp_path):
+    # DESIGN.md exit status 2: bad input or usage, nothing rendered, nothing written
+    out = tmp_path / "demo"
+    result = CliRunner().invoke(app, ["demo", "--out", str(out), "--cluster", "not-an-address", "--quiet"])
+    assert result.exit_code == 2, result.output
+    assert "not-an-address" in result.output
+    assert not (out / "manifest.json").exists()

@@ -33,6 +33,8 @@ def demo(
     quality: str = typer.Option("draft", "--quality", help="draft, proof or final."),
     force: bool = typer.Option(False, "--force", help="Render every shot again."),
     workers: int = typer.Option(1, "--workers", help="Worker processes on this machine."),
+    cluster: str = typer.Option(None, "--cluster", help="Render on a Dask cluster: tcp://HOST:PORT or local:N "
+                                "(needs the 'cluster' extra)."),
     no_denoise: bool = typer.Option(False, "--no-denoise", help="Keep the raw path-traced film (no denoiser)."),
     quiet: bool = typer.Option(False, "--quiet", help="No progress bar; only failures on stderr."),
     as_json: bool = typer.Option(False, "--json", help="One JSON object per finished shot on stdout."),
@@ -48,6 +50,6 @@ def demo(
 
     with _console.guarded():
         catalog, templates = demo_catalog()
-    run_batch(catalog, out, quality=quality, only=None, force=force, workers=workers, cluster=None, rig=None,
+    run_batch(catalog, out, quality=quality, only=None, force=force, workers=workers, cluster=cluster, rig=None,
               background=None, formats="png", sizes="", key_to_fill=None, rotation=None, quiet=quiet,
               as_json=as_json, templates=templates, sheet_formats=("png", "pdf", "html"), denoise=not no_denoise)
