@@ -31,14 +31,13 @@ def volume_attenuation(mat_table, mat, distance):
 
 
 @njit(**KERNEL)
-def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, nx, ny, nz):
-    """Shading frame (tx, ty, tz, bx, by, bz) whose x axis is the anisotropy direction.
+def tangent_frame(positions, uvs, tangents, triangles, tri, b1, b2, uv_set, nx, ny, nz):
+    """Unit tangent T and bitangent B = (N x T) w at barycentrics (b1, b2): ``(ok, tx, ty, tz, bx, by, bz)``.
 
-    KHR_materials_anisotropy: the direction is the tangent T rotated by ``anisotropyRotation``
-    towards the bitangent B = (N x T) w in the tangent plane.  T is the interpolated TANGENT
-    (xyz, w = handedness) when the mesh has one, else dp/du of the triangle in the
-    normalTexture's UV set (as ``path_kernels.normal_mapped``), Gram-Schmidt-orthogonalised
-    against the shading normal; without either, the frame of ``onb_from_normal``.
+    T is the interpolated TANGENT (xyz, w = handedness) when the mesh has one, else dp/du of the
+    triangle in UV set ``uv_set`` (the glTF sample viewer's fallback), Gram-Schmidt-orthogonalised
+    against the shading normal N.  ``ok`` is False when neither gives a direction (degenerate UVs
+    or T parallel to N); the other values are then meaningless.
     """
     i0 = triangles[tri, 0]
     i1 = triangles[tri, 1]
@@ -49,16 +48,15 @@ def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table
     tz = b0 * tangents[i0, 2] + b1 * tangents[i1, 2] + b2 * tangents[i2, 2]
     w = tangents[i0, 3]
     if tx * tx + ty * ty + tz * tz <= 1e-20:
-        set_ = int(mat_table[mat, 41])
-        if set_ < 0 or set_ > 1:
-            set_ = 0
-        du1 = float(uvs[i1, set_, 0]) - float(uvs[i0, set_, 0])
-        dv1 = float(uvs[i1, set_, 1]) - float(uvs[i0, set_, 1])
-        du2 = float(uvs[i2, set_, 0]) - float(uvs[i0, set_, 0])
-        dv2 = float(uvs[i2, set_, 1]) - float(uvs[i0, set_, 1])
+        if uv_set < 0 or uv_set > 1:
+            uv_set = 0
+        du1 = float(uvs[i1, uv_set, 0]) - float(uvs[i0, uv_set, 0])
+        dv1 = float(uvs[i1, uv_set, 1]) - float(uvs[i0, uv_set, 1])
+        du2 = float(uvs[i2, uv_set, 0]) - float(uvs[i0, uv_set, 0])
+        dv2 = float(uvs[i2, uv_set, 1]) - float(uvs[i0, uv_set, 1])
         det = du1 * dv2 - du2 * dv1
         if det == 0.0:
-            return onb_from_normal(nx, ny, nz)
+            return False, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0
         e1x = float(positions[i1, 0]) - float(positions[i0, 0])
         e1y = float(positions[i1, 1]) - float(positions[i0, 1])
         e1z = float(positions[i1, 2]) - float(positions[i0, 2])
@@ -69,13 +67,13 @@ def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table
         ty = (dv2 * e1y - dv1 * e2y) / det
         tz = (dv2 * e1z - dv1 * e2z) / det
         w = 1.0
-    d = tx * nx + ty * ny + tz * nz
+    d = tx * nx + ty * ny + tz * nz  # Gram-Schmidt against N
     tx -= d * nx
     ty -= d * ny
     tz -= d * nz
     tl = math.sqrt(tx * tx + ty * ty + tz * tz)
     if tl <= 1e-12:
-        return onb_from_normal(nx, ny, nz)
+        return False, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0
     tx /= tl
     ty /= tl
     tz /= tl
@@ -83,6 +81,21 @@ def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table
     bx = (ny * tz - nz * ty) * sign
     by = (nz * tx - nx * tz) * sign
     bz = (nx * ty - ny * tx) * sign
+    return True, tx, ty, tz, bx, by, bz
+
+
+@njit(**KERNEL)
+def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, nx, ny, nz):
+    """Shading frame (tx, ty, tz, bx, by, bz) whose x axis is the anisotropy direction.
+
+    KHR_materials_anisotropy: the direction is the tangent T rotated by ``anisotropyRotation``
+    towards the bitangent B in the tangent plane (:func:`tangent_frame`, in the normalTexture's UV
+    set); without a tangent, the frame of ``onb_from_normal``.
+    """
+    ok, tx, ty, tz, bx, by, bz = tangent_frame(positions, uvs, tangents, triangles, tri, b1, b2,
+                                               int(mat_table[mat, 41]), nx, ny, nz)
+    if not ok:
+        return onb_from_normal(nx, ny, nz)
     rot = float(mat_table[mat, 63])
     c = math.cos(rot)
     s = math.sin(rot)

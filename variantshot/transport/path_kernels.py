@@ -58,7 +58,7 @@ from .sampling_kernels import (
     sample_tent,
     uniform_from_state,
 )
-from .layers_kernels import anisotropy_frame, coat_emission_scale, volume_attenuation
+from .layers_kernels import anisotropy_frame, coat_emission_scale, tangent_frame, volume_attenuation
 from .texture_kernels import sample_slot
 
 
@@ -111,8 +111,7 @@ def normal_mapped(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, m
                   nx, ny, nz, u0, v0, u1, v1):
     """Shading normal perturbed by the material's normalTexture (glTF 2.0 §3.9.3).
 
-    Tangent space: T = the interpolated TANGENT (xyz, w = handedness) when the mesh has one,
-    else dp/du of the triangle (the glTF sample viewer's fallback); B = cross(N, T) w;
+    Tangent space from ``layers_kernels.tangent_frame`` (TANGENT, else dp/du);
     n = normalize(T x + B y + N z) with (x, y, z) = (2 texel - 1) x (scale, scale, 1).
     Returns the unit normal (the unperturbed one when the material has no normal texture).
     """
@@ -123,48 +122,10 @@ def normal_mapped(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, m
     mx = (2.0 * tr - 1.0) * scale
     my = (2.0 * tg - 1.0) * scale
     mz = 2.0 * tb - 1.0
-    i0 = triangles[tri, 0]
-    i1 = triangles[tri, 1]
-    i2 = triangles[tri, 2]
-    b0 = 1.0 - b1 - b2
-    tx = b0 * tangents[i0, 0] + b1 * tangents[i1, 0] + b2 * tangents[i2, 0]
-    ty = b0 * tangents[i0, 1] + b1 * tangents[i1, 1] + b2 * tangents[i2, 1]
-    tz = b0 * tangents[i0, 2] + b1 * tangents[i1, 2] + b2 * tangents[i2, 2]
-    w = tangents[i0, 3]
-    if tx * tx + ty * ty + tz * tz <= 1e-20:
-        set_ = int(mat_table[mat, 41])
-        du1 = float(uvs[i1, set_, 0]) - float(uvs[i0, set_, 0])
-        dv1 = float(uvs[i1, set_, 1]) - float(uvs[i0, set_, 1])
-        du2 = float(uvs[i2, set_, 0]) - float(uvs[i0, set_, 0])
-        dv2 = float(uvs[i2, set_, 1]) - float(uvs[i0, set_, 1])
-        det = du1 * dv2 - du2 * dv1
-        if det == 0.0:
-            return nx, ny, nz
-        e1x = float(positions[i1, 0]) - float(positions[i0, 0])
-        e1y = float(positions[i1, 1]) - float(positions[i0, 1])
-        e1z = float(positions[i1, 2]) - float(positions[i0, 2])
-        e2x = float(positions[i2, 0]) - float(positions[i0, 0])
-        e2y = float(positions[i2, 1]) - float(positions[i0, 1])
-        e2z = float(positions[i2, 2]) - float(positions[i0, 2])
-        tx = (dv2 * e1x - dv1 * e2x) / det
-        ty = (dv2 * e1y - dv1 * e2y) / det
-        tz = (dv2 * e1z - dv1 * e2z) / det
-        w = 1.0
-    # Gram-Schmidt against N
-    d = tx * nx + ty * ny + tz * nz
-    tx -= d * nx
-    ty -= d * ny
-    tz -= d * nz
-    tl = math.sqrt(tx * tx + ty * ty + tz * tz)
-    if tl <= 0.0:
+    ok, tx, ty, tz, bx, by, bz = tangent_frame(positions, uvs, tangents, triangles, tri, b1, b2,
+                                               int(mat_table[mat, 41]), nx, ny, nz)
+    if not ok:
         return nx, ny, nz
-    tx /= tl
-    ty /= tl
-    tz /= tl
-    sign = 1.0 if w >= 0.0 else -1.0
-    bx = (ny * tz - nz * ty) * sign
-    by = (nz * tx - nx * tz) * sign
-    bz = (nx * ty - ny * tx) * sign
     rx = tx * mx + bx * my + nx * mz
     ry = ty * mx + by * my + ny * mz
     rz = tz * mx + bz * my + nz * mz
