@@ -4,7 +4,9 @@ A shot is re-rendered exactly when its key changes.  The key covers, in this ord
 canonical JSON (sorted keys, no spaces, floats by ``repr``):
 
 1. ``"variantshot-shot-key/1"`` (the key format),
-2. the renderer version (``variantshot X.Y.Z``),
+2. the renderer's identity (:func:`renderer_identity`: ``variantshot X.Y.Z`` plus the versions
+   of the libraries that shape the pixels or the file bytes -- Pillow encodes the images and
+   embeds the sRGB ICC profile, pyoidn denoises), so upgrading either re-renders,
 3. the template file's bytes (SHA-256) and the finish file's bytes,
 4. the row's values (every column, after stripping spaces) and the material-variant entry,
 5. the bytes of the product's model files (the model glTF and every buffer or image the
@@ -31,6 +33,27 @@ from pathlib import Path
 import numpy as np
 
 KEY_FORMAT = "variantshot-shot-key/1"
+
+#: Distributions whose version changes a shot's bytes (see :func:`renderer_identity`).
+PIXEL_LIBRARIES = ("pillow", "pyoidn")
+
+
+def renderer_identity() -> str:
+    """``"variantshot X.Y.Z; pillow A; pyoidn B"`` (``pyoidn none`` when it is not installed).
+
+    Read from the installed distributions' metadata, so nothing heavy is imported.
+    """
+    from importlib import metadata
+
+    from .. import __version__
+
+    parts = [f"variantshot {__version__}"]
+    for name in PIXEL_LIBRARIES:
+        try:
+            parts.append(f"{name} {metadata.version(name)}")
+        except metadata.PackageNotFoundError:
+            parts.append(f"{name} none")
+    return "; ".join(parts)
 
 
 def canonical(obj):

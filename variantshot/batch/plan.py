@@ -23,9 +23,8 @@ import json
 from dataclasses import asdict, dataclass
 from pathlib import Path
 
-from .. import __version__
 from ..catalog import angles as angle_lib
-from .cache import shot_key
+from .cache import renderer_identity, shot_key
 
 STATUSES = ("new", "changed", "up-to-date")
 SHOT_ID_SEPARATOR = "--"
@@ -181,7 +180,7 @@ def plan_shots(catalog, out_dir, settings=None, *, rig: str | None = None, templ
     default_rig = rig or default_rig_name()
     batch_background = _settings_background(settings) or "white"
     manifest = _read_manifest_shots(out_dir)
-    renderer = f"variantshot {__version__}"
+    renderer = renderer_identity()
     rig_defs: dict[str, object] = {}
     digests: dict = {}
     shots = []

@@ -538,10 +538,10 @@ def self_contained_gltf(expanded) -> bytes:
 
 
 def _failed_key(variant, template_path, settings, angle) -> str:
-    from .cache import shot_key
+    from .cache import renderer_identity, shot_key
 
     files = [template_path] if template_path is not None and Path(template_path).is_file() else []
-    return shot_key(renderer_version=f"variantshot {__version__}", template_files=files, row=variant.row,
+    return shot_key(renderer_version=renderer_identity(), template_files=files, row=variant.row,
                     model_files=[], rig_name=variant.rig or "", rig_definition="", settings=settings,
                     angle=angle)
 
