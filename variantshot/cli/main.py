@@ -19,6 +19,8 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_show_locals=False,
+    # markdown: docstring paragraphs wrapped in the source reflow to the terminal's width
+    rich_markup_mode="markdown",
 )
 
 

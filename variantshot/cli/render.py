@@ -112,8 +112,8 @@ def render(
 ) -> None:
     """Render every out-of-date shot of CATALOG into OUT, run QA, write the manifest and a sheet.
 
-    A shot is re-rendered only when its key (template, row, model bytes, rig, settings, renderer
-    version) changed; --force and --only widen or narrow the run. Files are written atomically
+    A shot is re-rendered only when its key (template, row, model bytes, rig, settings, renderer and
+    image-library versions) changed; --force and --only widen or narrow the run. Files are written atomically
     and the manifest after every shot, so a killed run resumes where it stopped. Exit status 0
     all done; 1 some shots failed to render or failed QA; 2 bad input; 3 another run holds OUT.
     With --cluster the shots render on Dask workers (no shared file system needed); this
