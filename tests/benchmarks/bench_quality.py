@@ -83,7 +83,7 @@ def main(argv=None) -> dict:
     ap.add_argument("--ref-spp", type=int, default=2048)
     ap.add_argument("--threads", type=int, default=2)
     ap.add_argument("--baseline-spp", default="16,64,256")
-    ap.add_argument("--full-targets", default="0.3,0.15,0.08")
+    ap.add_argument("--full-targets", default="0.6,0.3,0.15")
     ap.add_argument("--max-depth", type=int, default=12)
     args = ap.parse_args(argv)
     os.environ.setdefault("NUMBA_NUM_THREADS", str(args.threads))
