@@ -17,6 +17,7 @@ that far below the noise (``tests/unit/transport/test_adaptive.py``).  See ``pat
 from __future__ import annotations
 
 import logging
+import math
 import time
 
 import numpy as np
@@ -102,6 +103,20 @@ def _still_noisy(sums, active: np.ndarray, settings: RenderSettings) -> np.ndarr
     return (active.astype(bool) & noisy).astype(np.uint8)
 
 
+def ray_cone(cam: np.ndarray, spp: int) -> tuple[float, float]:
+    """(spread in radians per unit length, base width) of the camera's per-sample ray cone.
+
+    One pixel subtends 2 tan(yfov / 2) / height radians at the image centre (perspective) or is
+    2 ymag / height wide (orthographic); the cone is that footprint times max(1/8, 1/sqrt(spp)),
+    since the pixel's samples already spread over it (``texture_kernels``).
+    """
+    height = float(cam[22])
+    shrink = max(0.125, 1.0 / math.sqrt(max(int(spp), 1)))
+    if int(cam[0]) == 1:  # orthographic
+        return 0.0, 2.0 * float(cam[17]) / height * shrink
+    return 2.0 * float(cam[17]) / height * shrink, 0.0
+
+
 def render(
     scene: Scene,
     settings: RenderSettings,
@@ -185,7 +200,8 @@ def render(
     colours = np.ascontiguousarray(scene.colours, dtype=np.float32)
     triangles = np.ascontiguousarray(scene.triangles, dtype=np.int32)
     tri_material = np.ascontiguousarray(scene.tri_material, dtype=np.int32)
-    fopts = np.array([eps, FILTER_RADIUS_PX], np.float64)
+    cone_spread, cone_base = ray_cone(cam, settings.spp)
+    fopts = np.array([eps, FILTER_RADIUS_PX, cone_spread, cone_base], np.float64)
     total = settings.spp
     adaptive = settings.noise_target is not None and total > settings.adaptive_min_spp
     if sample_mask is None:

@@ -34,7 +34,10 @@ light point and the BSDF direction come from Sobol' pairs 2 and 3 instead of +2.
 
 Packed integer options ``opts`` (int64): 0 width, 1 height, 2 first sample, 3 end sample,
 4 seed, 5 max depth, 6 mode (0 full, 1 baseline), 7 has environment, 8 has non-opaque
-materials.  Float options ``fopts`` (float64): 0 ray offset eps, 1 filter radius (pixels).
+materials.  Float options ``fopts`` (float64): 0 ray offset eps, 1 filter radius (pixels),
+2 ray-cone spread (radians per unit length travelled), 3 ray-cone base width (world units;
+orthographic cameras); base colour and metallic-roughness lookups on the path's surfaces are
+filtered for the cone's footprint (``texture_kernels``), the other slots read level 0.
 """
 
 from __future__ import annotations
@@ -59,7 +62,7 @@ from .sampling_kernels import (
     uniform_from_state,
 )
 from .layers_kernels import anisotropy_frame, coat_emission_scale, tangent_frame, volume_attenuation
-from .texture_kernels import sample_slot
+from .texture_kernels import footprint_uv_widths, sample_slot, sample_slot_lod
 
 
 @njit(**KERNEL)
@@ -191,6 +194,8 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
     has_alpha = opts[8]
     eps = fopts[0]
     radius = fopts[1]
+    cone_spread = fopts[2]  # ray cone (texture_kernels): width = base + spread x distance
+    cone_base = fopts[3]
     sel_total = sel_cdf[sel_cdf.shape[0] - 1]
     p_env_sel = (sel_cdf[1] - sel_cdf[0]) / sel_total if sel_total > 0.0 else 0.0
     p_emit_sel = (sel_cdf[2] - sel_cdf[1]) / sel_total if sel_total > 0.0 else 0.0
@@ -218,6 +223,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
     coverage = 0.0
     depth_out = -1.0
     seg_t = 0.0  # distance travelled through alpha-passed surfaces since the last vertex
+    path_t = 0.0  # distance travelled from the camera to the last vertex (the ray cone's length)
     prev_pdf = 0.0
     prev_transmit = False  # the last BSDF sample refracted: NEE cannot make it, no MIS
     depth = 0
@@ -290,7 +296,13 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             snx = ngx
             sny = ngy
             snz = ngz
-        bt = sample_slot(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1)
+        fw0 = 0.0
+        fw1 = 0.0
+        if mat_table[mat, 16] >= 0.0 or mat_table[mat, 24] >= 0.0:
+            fw0, fw1 = footprint_uv_widths(positions, uvs, triangles, tri,
+                                           cone_base + cone_spread * (path_t + seg_t + t),
+                                           ngx * dx + ngy * dy + ngz * dz)
+        bt = sample_slot_lod(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1, fw0, fw1)
         base_r = float(mat_table[mat, 1]) * bt[0] * cr
         base_g = float(mat_table[mat, 2]) * bt[1] * cg
         base_b = float(mat_table[mat, 3]) * bt[2] * cb
@@ -324,7 +336,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                 lb += beta_b * eb * w
         if depth + 1 >= max_depth:
             break
-        mr = sample_slot(mat_table, mat, 24, tex_pixels, tex_table, u0, v0, u1, v1)
+        mr = sample_slot_lod(mat_table, mat, 24, tex_pixels, tex_table, u0, v0, u1, v1, fw0, fw1)
         metallic = float(mat_table[mat, 5]) * mr[2]
         roughness = float(mat_table[mat, 6]) * mr[1]
         bsdf = material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, front)
@@ -474,6 +486,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             ox = ox_s
             oy = oy_s
             oz = oz_s
+        path_t += seg_t + t
         seg_t = 0.0
         dx = nx_
         dy = ny_

@@ -78,7 +78,7 @@ def test_a_texture_used_as_colour_and_data_gets_two_entries():
                        textures=[Texture(pixels=px)])
     table, atlas = pack_materials(scene)
     assert table[0, 16] == table[0, 32] != table[0, 24]
-    assert atlas.table.shape[0] == 2
+    assert atlas.table.shape[0] == 4  # two entries of two levels (2 x 2, 1 x 1) each
     lin = sample_texture(atlas, int(table[0, 16]), [[0.5, 0.5]])[0, 0]
     raw = sample_texture(atlas, int(table[0, 24]), [[0.5, 0.5]])[0, 0]
     assert raw == pytest.approx(0.5) and lin == pytest.approx(0.21404114, abs=1e-6)  # sRGB 0.5 -> 0.214041
