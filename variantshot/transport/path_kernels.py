@@ -299,7 +299,7 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         fw0 = 0.0
         fw1 = 0.0
         if mat_table[mat, 16] >= 0.0 or mat_table[mat, 24] >= 0.0:
-            fw0, fw1 = footprint_uv_widths(positions, uvs, triangles, tri,
+            fw0, fw1 = footprint_uv_widths(uvs, triangles, tri, area,
                                            cone_base + cone_spread * (path_t + seg_t + t),
                                            ngx * dx + ngy * dy + ngz * dz)
         bt = sample_slot_lod(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1, fw0, fw1)

@@ -197,29 +197,20 @@ def sample_slot_lod(mat_table, mat, col, tex_pixels, tex_table, uv0u, uv0v, uv1u
 
 
 @njit(**KERNEL)
-def footprint_uv_widths(positions, uvs, triangles, tri, cone_width, cos_theta):
-    """Width of a ray cone's footprint in UV units of sets 0 and 1 at a hit on triangle ``tri``.
+def footprint_uv_widths(uvs, triangles, tri, area, cone_width, cos_theta):
+    """Width of a ray cone's footprint in UV units of sets 0 and 1 at a hit on triangle ``tri``
+    of world ``area`` (``light_kernels.triangle_geometry``).
 
     ``cone_width`` (world units) over sqrt(|cos theta|) is the footprint's isotropic width on the
     surface; sqrt(uv area / world area) converts it to UV units (0 for a degenerate triangle or
     UV set, which then reads level 0).
     """
+    c = abs(cos_theta)
+    if area <= 0.0 or cone_width <= 0.0 or c <= 0.0:
+        return 0.0, 0.0
     i0 = triangles[tri, 0]
     i1 = triangles[tri, 1]
     i2 = triangles[tri, 2]
-    e1x = float(positions[i1, 0]) - float(positions[i0, 0])
-    e1y = float(positions[i1, 1]) - float(positions[i0, 1])
-    e1z = float(positions[i1, 2]) - float(positions[i0, 2])
-    e2x = float(positions[i2, 0]) - float(positions[i0, 0])
-    e2y = float(positions[i2, 1]) - float(positions[i0, 1])
-    e2z = float(positions[i2, 2]) - float(positions[i0, 2])
-    cx = e1y * e2z - e1z * e2y
-    cy = e1z * e2x - e1x * e2z
-    cz = e1x * e2y - e1y * e2x
-    world2 = math.sqrt(cx * cx + cy * cy + cz * cz)  # twice the area
-    c = abs(cos_theta)
-    if world2 <= 0.0 or cone_width <= 0.0 or c <= 0.0:
-        return 0.0, 0.0
     w = cone_width / math.sqrt(max(c, 1e-4))
     out0 = 0.0
     out1 = 0.0
@@ -228,8 +219,8 @@ def footprint_uv_widths(positions, uvs, triangles, tri, cone_width, cos_theta):
         a1v = float(uvs[i1, s, 1]) - float(uvs[i0, s, 1])
         a2u = float(uvs[i2, s, 0]) - float(uvs[i0, s, 0])
         a2v = float(uvs[i2, s, 1]) - float(uvs[i0, s, 1])
-        uv2 = abs(a1u * a2v - a1v * a2u)
-        width = w * math.sqrt(uv2 / world2)
+        uv_area = 0.5 * abs(a1u * a2v - a1v * a2u)
+        width = w * math.sqrt(uv_area / area)
         if s == 0:
             out0 = width
         else:

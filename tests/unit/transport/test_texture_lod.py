@@ -94,10 +94,19 @@ def test_footprint_width_closed_form():
     uvs[:, 1] = [[0, 0], [1, 0], [0, 1]]
     triangles = np.array([[0, 1, 2]], np.int32)
     cos_theta = 0.5
-    fw0, fw1 = texture_kernels.footprint_uv_widths(positions, uvs, triangles, 0, 0.01, cos_theta)
+    area = _triangle_area(positions)
+    fw0, fw1 = texture_kernels.footprint_uv_widths(uvs, triangles, 0, area, 0.01, cos_theta)
     w = 0.01 / math.sqrt(cos_theta)
     assert fw0 == pytest.approx(w * math.sqrt(0.125 / 6.0), rel=1e-6)
     assert fw1 == pytest.approx(w * math.sqrt(1.0 / 6.0), rel=1e-6)
+
+
+def _triangle_area(positions):
+    from variantshot.transport.light_kernels import triangle_geometry
+
+    area = triangle_geometry(positions, np.array([[0, 1, 2]], np.int32), 0)[0]
+    assert area == pytest.approx(3.0)  # 2 x 3 / 2
+    return area
 
 
 def _textured_quad(n, cell, min_filter, side=1.0):
