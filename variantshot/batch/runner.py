@@ -259,24 +259,59 @@ def _resize_linear(rgb: np.ndarray, alpha, long_side: int):
     return res, a
 
 
-def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int = 2, seed: int = 0) -> np.ndarray:
+def shadow_blur_radius(width: int, height: int) -> int:
+    """Radius (pixels) of the box blur over the shadow map: 1 % of the longer side, at least 1."""
+    return max(1, int(round(0.01 * max(width, height))))
+
+
+def shadow_step(width: int, height: int) -> int:
+    """Grid step (pixels) the shadow map is sampled on: half the blur radius.
+
+    The map is box-blurred over ``2 r + 1`` pixels; bilinear samples ``r / 2`` apart carry every
+    detail that blur lets through (``tests/unit/batch/test_shadow_map.py`` compares it with a
+    step of 2 after the blur).
+    """
+    return max(1, shadow_blur_radius(width, height) // 2)
+
+
+def _linear_weights(n_out: int, centres: np.ndarray) -> np.ndarray:
+    """(n_out, len(centres)) matrix interpolating samples at pixel positions ``centres``
+    (increasing) linearly to every pixel centre ``x + 0.5``, clamped at both ends."""
+    x = np.arange(n_out) + 0.5
+    m = len(centres)
+    w = np.zeros((n_out, m))
+    if m == 1:
+        w[:, 0] = 1.0
+        return w
+    j = np.clip(np.searchsorted(centres, x, side="right") - 1, 0, m - 2)
+    f = np.clip((x - centres[j]) / (centres[j + 1] - centres[j]), 0.0, 1.0)
+    w[np.arange(n_out), j] = 1.0 - f
+    w[np.arange(n_out), j + 1] += f
+    return w
+
+
+def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int | None = None, seed: int = 0,
+               strata: int | None = None, ratio_out: dict | None = None) -> np.ndarray:
     """The product's snapped shadow on the sweep as seen by ``camera``, ``(H, W) float64``.
 
-    Camera rays through the centres of ``step`` x ``step`` pixel blocks find the sweep behind
-    every pixel (the product left out); :func:`~variantshot.geometry.rig.direct_light_ratio`
-    gives the share of the rig's direct light the product lets through there; the ratio is
-    upsampled bilinearly to the image, box-blurred over 1 % of the longer side (at least
-    3 x 3 pixels) to hide the jitter, and snapped
-    with the rig's ``white_boost_ev`` (:func:`~variantshot.imaging.background.snap_shadow`).  Pixels that see a soft box or the
-    environment are unshadowed.
+    Camera rays through the centres of ``step`` x ``step`` pixel blocks (default
+    :func:`shadow_step`, half the blur radius) find the sweep behind every pixel (the product
+    left out); :func:`~variantshot.geometry.rig.direct_light_ratio` gives the share of the rig's
+    direct light the product lets through there; the ratio is interpolated bilinearly to every
+    pixel, box-blurred over 1 % of the longer side (:func:`shadow_blur_radius`) to hide the
+    jitter, and snapped with the rig's ``white_boost_ev``
+    (:func:`~variantshot.imaging.background.snap_shadow`).  Pixels that see a soft box or the
+    environment are unshadowed.  ``ratio_out``, when given, receives the blurred ratio before
+    snapping under ``"ratio"``.
     """
-    from PIL import Image
-
     from ..geometry.bvh import build_bvh, intersect
     from ..geometry.rig import direct_light_ratio
     from ..imaging.background import box_blur, snap_shadow
     from ..transport.camera import generate_rays, pack_camera
 
+    if step is None:
+        step = shadow_step(width, height)
+    step = max(1, int(step))
     w2, h2 = -(-width // step), -(-height // step)
     xs = np.minimum((np.arange(w2) + 0.5) * step, width - 0.5)
     ys = np.minimum((np.arange(h2) + 0.5) * step, height - 0.5)
@@ -285,26 +320,36 @@ def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int =
     o, d = generate_rays(cam, gx.ravel(), gy.ravel())
     scene = rig.scene
     hits = intersect(build_bvh(scene.positions, scene.triangles), o, d)
-    ratio = np.ones(o.shape[0])
     tri = hits.tri
     on_sweep = tri >= 0
     on_sweep[on_sweep] = scene.tri_material[tri[on_sweep]] == rig.floor_material
     if on_sweep.any():
+        pts = np.zeros((o.shape[0], 3))
+        nrm = np.zeros((o.shape[0], 3))
+        nrm[:, 1] = 1.0
         t = hits.t[on_sweep].astype(np.float64)
-        p = o[on_sweep] + t[:, None] * d[on_sweep]
+        pts[on_sweep] = o[on_sweep] + t[:, None] * d[on_sweep]
         tv = scene.triangles[tri[on_sweep]]
         b1 = hits.b1[on_sweep].astype(np.float64)[:, None]
         b2 = hits.b2[on_sweep].astype(np.float64)[:, None]
         nv = scene.normals.astype(np.float64)
-        nrm = (1 - b1 - b2) * nv[tv[:, 0]] + b1 * nv[tv[:, 1]] + b2 * nv[tv[:, 2]]
-        ratio[on_sweep] = direct_light_ratio(rig, p, nrm, product_bvh, seed=seed)
-    low = ratio.reshape(h2, w2)
+        nrm[on_sweep] = (1 - b1 - b2) * nv[tv[:, 0]] + b1 * nv[tv[:, 1]] + b2 * nv[tv[:, 2]]
+        k = strata if strata is not None else (4 if step <= 2 else 8)
+        # each node's samples spread over its step x step cell: no aliasing of hard edges
+        low = direct_light_ratio(rig, pts.reshape(h2, w2, 3), nrm.reshape(h2, w2, 3), product_bvh,
+                                 box_samples=k, env_samples=k, seed=seed, valid=on_sweep.reshape(h2, w2),
+                                 spread=step > 1)
+    else:
+        low = np.ones((h2, w2))
     if step > 1:
-        im = Image.fromarray(low.astype(np.float32), mode="F").resize((width, height), Image.BILINEAR)
-        full = np.asarray(im, np.float64)
+        # separable linear interpolation from the sample positions (the last ones clamped to
+        # the image) to every pixel centre
+        full = _linear_weights(height, ys) @ low @ _linear_weights(width, xs).T
     else:
         full = low
-    full = box_blur(full, max(1, int(round(0.01 * max(width, height)))))
+    full = box_blur(full, shadow_blur_radius(width, height))
+    if ratio_out is not None:
+        ratio_out["ratio"] = full
     return snap_shadow(full, rig.spec.white_boost_ev)
 
 
@@ -361,8 +406,7 @@ def _render_shot(task: ShotTask) -> ShotResult:
     sample_mask = _sample_mask(coverage) if bg in ("white", "transparent") else None
     film = render(shot_scene, settings, env=env, camera=camera, sample_mask=sample_mask)
     if bg in ("white", "transparent"):
-        step = 2 if max(settings.width, settings.height) >= 256 else 1
-        shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, step=step, seed=task.quality.seed)
+        shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, seed=task.quality.seed)
     else:
         shadow = None
     t_render = time.perf_counter()

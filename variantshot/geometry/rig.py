@@ -729,6 +729,8 @@ def direct_light_ratio(
     env_samples: int = 4,
     seed: int = 0,
     eps: float | None = None,
+    valid=None,
+    spread: bool = False,
 ) -> np.ndarray:
     """How much of the rig's direct light reaches each point with an occluder present.
 
@@ -740,11 +742,16 @@ def direct_light_ratio(
     directions of weight π L_env / M.  The sweep itself is not tested as an occluder (it is
     the receiver; it blocks the same light with and without the product).
 
+    The per-point work is one numba ``prange`` kernel (:func:`.rig_kernels.light_ratio`); its
+    random numbers are hashes of (point index, stratum, seed), so the same seed gives the same
+    bits on any thread count.
+
     Parameters
     ----------
     rig : Rig
-    points, normals : (N, 3) float arrays
-        Receiver positions and unit normals (world space).
+    points, normals : (N, 3) or (H, W, 3) float arrays
+        Receiver positions and unit normals (world space), a list or a grid (a camera's view
+        of the sweep, one node per grid step).
     occluder_bvh : BVH
         ``build_bvh`` of the product.
     box_samples, env_samples : int
@@ -753,68 +760,40 @@ def direct_light_ratio(
         Jitter seed (deterministic).
     eps : float, optional
         Offset of the shadow rays' origin along the normal (default 1e-4 R).
+    valid : (H, W) bool array, optional
+        For a grid: which nodes are receivers (others get 1 and are not interpolated from).
+    spread : bool
+        For a grid: spread each node's samples over its cell (the surface interpolated
+        bilinearly between neighbouring nodes), a one-cell box prefilter, so a sparse grid
+        does not alias hard shadow edges.
 
     Returns
     -------
-    (N,) float64 ndarray in [0, 1]; exactly 1 where nothing is occluded.
+    (N,) or (H, W) float64 ndarray in [0, 1]; exactly 1 where nothing is occluded.
     """
-    from .bvh import occluded
+    from . import rig_kernels
 
-    p = np.asarray(points, np.float64).reshape(-1, 3)
-    n = np.asarray(normals, np.float64).reshape(-1, 3)
-    n = n / np.maximum(np.linalg.norm(n, axis=1, keepdims=True), 1e-30)
-    N = p.shape[0]
-    if N == 0:
-        return np.ones(0)
+    p = np.asarray(points, np.float64)
+    grid = p.ndim == 3
+    if not grid:
+        p = p.reshape(1, -1, 3)
+    n = np.asarray(normals, np.float64).reshape(p.shape)
+    n = np.ascontiguousarray(n / np.maximum(np.linalg.norm(n, axis=-1, keepdims=True), 1e-30))
+    p = np.ascontiguousarray(p)
+    if p.shape[0] * p.shape[1] == 0:
+        return np.ones(p.shape[:2] if grid else 0)
+    if valid is None:
+        valid = np.ones(p.shape[:2], np.uint8)
+    valid = np.ascontiguousarray(np.asarray(valid).reshape(p.shape[:2]), dtype=np.uint8)
     eps = 1e-4 * rig.radius if eps is None else eps
-    o = p + eps * n
-    rng = np.random.default_rng(seed)
-    e_with = np.zeros(N)
-    e_without = np.zeros(N)
-    k = box_samples
-    gu, gv = np.meshgrid((np.arange(k) + 0.5) / k, (np.arange(k) + 0.5) / k)
-    strata = np.stack([gu.ravel(), gv.ravel()], axis=1)
-    for name, c in rig.box_corners.items():
-        L = rig.box_radiance[name]
-        e1, e2 = c[1] - c[0], c[3] - c[0]
-        area = float(np.linalg.norm(np.cross(e1, e2)))
-        bn = np.cross(e1, e2) / area
-        for s in strata:
-            jit = (rng.random((N, 2)) - 0.5) / k
-            uv = s[None, :] + jit
-            y = c[0] + uv[:, :1] * e1 + uv[:, 1:2] * e2
-            d = y - o
-            dist2 = np.sum(d * d, axis=1)
-            dn = d / np.sqrt(dist2)[:, None]
-            cos_x = np.sum(dn * n, axis=1)
-            cos_y = -dn @ bn
-            w = np.where((cos_x > 0) & (cos_y > 0), L * cos_x * cos_y * (area / (k * k)) / dist2, 0.0)
-            live = w > 0
-            vis = np.ones(N, bool)
-            if live.any():
-                vis[live] = ~occluded(occluder_bvh, o[live], d[live], 0.0, 1.0)
-            e_without += w
-            e_with += w * vis
-    env_l = 0.2126 * rig.environment_linear[0] + 0.7152 * rig.environment_linear[1] + 0.0722 * rig.environment_linear[2]
-    if env_l > 0 and env_samples > 0:
-        m = env_samples
-        # tangent frames (Frisvad 2012, branchless variant of Duff et al. 2017)
-        sign = np.where(n[:, 2] >= 0, 1.0, -1.0)
-        a = -1.0 / (sign + n[:, 2])
-        b = n[:, 0] * n[:, 1] * a
-        t1 = np.stack([1 + sign * n[:, 0] ** 2 * a, sign * b, -sign * n[:, 0]], axis=1)
-        t2 = np.stack([b, sign + n[:, 1] ** 2 * a, -n[:, 1]], axis=1)
-        weight = math.pi * env_l / (m * m)
-        for i in range(m):
-            for j in range(m):
-                u0 = (i + rng.random(N)) / m
-                u1 = (j + rng.random(N)) / m
-                r, phi = np.sqrt(u0), 2 * math.pi * u1  # Malley's method: cosine-weighted
-                x, yy, z = r * np.cos(phi), r * np.sin(phi), np.sqrt(np.maximum(0.0, 1 - u0))
-                d = x[:, None] * t1 + yy[:, None] * t2 + z[:, None] * n
-                vis = ~occluded(occluder_bvh, o, d, 0.0, np.inf)
-                e_without += weight
-                e_with += weight * vis
-    with np.errstate(invalid="ignore", divide="ignore"):
-        ratio = np.where(e_without > 0, e_with / e_without, 1.0)
-    return np.clip(ratio, 0.0, 1.0)
+    names = list(rig.box_corners)
+    corners = np.ascontiguousarray(np.array([rig.box_corners[k] for k in names], np.float64).reshape(-1, 4, 3))
+    radiance = np.array([rig.box_radiance[k] for k in names], np.float64)
+    env = rig.environment_linear
+    env_l = 0.2126 * env[0] + 0.7152 * env[1] + 0.0722 * env[2]
+    out = np.empty(p.shape[:2], np.float64)
+    b = occluder_bvh
+    rig_kernels.light_ratio(p, n, valid, 1 if (grid and spread) else 0, corners, radiance, int(box_samples),
+                            float(env_l), int(env_samples), float(eps), int(seed),
+                            b.nodes_f, b.nodes_i, b.tris_f, b.tri_ids, out)
+    return out if grid else out.reshape(-1)
