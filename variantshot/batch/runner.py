@@ -291,7 +291,7 @@ def _linear_weights(n_out: int, centres: np.ndarray) -> np.ndarray:
 
 
 def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int | None = None, seed: int = 0,
-               strata: int | None = None, ratio_out: dict | None = None) -> np.ndarray:
+               strata: int | None = None, product=None, ratio_out: dict | None = None) -> np.ndarray:
     """The product's snapped shadow on the sweep as seen by ``camera``, ``(H, W) float64``.
 
     Camera rays through the centres of ``step`` x ``step`` pixel blocks (default
@@ -301,7 +301,10 @@ def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int |
     pixel, box-blurred over 1 % of the longer side (:func:`shadow_blur_radius`) to hide the
     jitter, and snapped with the rig's ``white_boost_ev``
     (:func:`~variantshot.imaging.background.snap_shadow`).  Pixels that see a soft box or the
-    environment are unshadowed.  ``ratio_out``, when given, receives the blurred ratio before
+    environment are unshadowed.  ``product`` (the product's Scene, the one ``product_bvh``
+    was built from) lets glass and other transmissive or alpha surfaces pass the light they
+    transmit (see ``direct_light_ratio``'s ``occluder``); without it the product is opaque.
+    ``ratio_out``, when given, receives the blurred ratio before
     snapping under ``"ratio"``.
     """
     from ..geometry.bvh import build_bvh, intersect
@@ -338,7 +341,7 @@ def shadow_map(rig, camera, width: int, height: int, product_bvh, *, step: int |
         # each node's samples spread over its step x step cell: no aliasing of hard edges
         low = direct_light_ratio(rig, pts.reshape(h2, w2, 3), nrm.reshape(h2, w2, 3), product_bvh,
                                  box_samples=k, env_samples=k, seed=seed, valid=on_sweep.reshape(h2, w2),
-                                 spread=step > 1)
+                                 spread=step > 1, occluder=product)
     else:
         low = np.ones((h2, w2))
     if step > 1:
@@ -406,7 +409,8 @@ def _render_shot(task: ShotTask) -> ShotResult:
     sample_mask = _sample_mask(coverage) if bg in ("white", "transparent") else None
     film = render(shot_scene, settings, env=env, camera=camera, sample_mask=sample_mask)
     if bg in ("white", "transparent"):
-        shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, seed=task.quality.seed)
+        shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, seed=task.quality.seed,
+                            product=product)
     else:
         shadow = None
     t_render = time.perf_counter()
@@ -582,10 +586,10 @@ def self_contained_gltf(expanded) -> bytes:
 
 
 def _failed_key(variant, template_path, settings, angle) -> str:
-    from .cache import renderer_identity, shot_key
+    from .cache import shot_key
 
     files = [template_path] if template_path is not None and Path(template_path).is_file() else []
-    return shot_key(renderer_version=renderer_identity(), template_files=files, row=variant.row,
+    return shot_key(renderer_version=f"variantshot {__version__}", template_files=files, row=variant.row,
                     model_files=[], rig_name=variant.rig or "", rig_definition="", settings=settings,
                     angle=angle)
 

@@ -719,6 +719,27 @@ def card_irradiance(rig: Rig, normal) -> float:
 # ----------------------------------------------------------------------------- shadow catcher
 
 
+def _occluder_arrays(scene: Scene | None):
+    """The kernel's mesh, material and texture arrays of an occluder, ``walk`` (1 when a shadow
+    ray must walk its hits: a transmissive or alpha material) and the step past each hit."""
+    if scene is None or scene.n_triangles == 0:
+        z = np.zeros
+        return ((z((1, 3), np.float32), z((1, 3), np.float32), z((1, 2, 2), np.float32), z((1, 4), np.float32),
+                 z((1, 3), np.int32), z(1, np.int32), z((1, 64), np.float32), z((1, 4), np.float32),
+                 z((1, 8), np.int32)), 0, 0.0)
+    from ..transport.integrator import ray_epsilon
+    from ..transport.materials import pack_materials
+
+    table, atlas = pack_materials(scene)
+    walk = int(bool(np.any((table[:, 48] > 0.0) | (table[:, 10] != 0))))
+    c = np.ascontiguousarray
+    mesh = (c(scene.positions, dtype=np.float32), c(scene.normals, dtype=np.float32), c(scene.uvs, dtype=np.float32),
+            c(scene.colours, dtype=np.float32), c(scene.triangles, dtype=np.int32),
+            c(scene.tri_material, dtype=np.int32), table, c(atlas.pixels, dtype=np.float32),
+            c(atlas.table, dtype=np.int32))
+    return mesh, walk, float(ray_epsilon(scene))
+
+
 def direct_light_ratio(
     rig: Rig,
     points,
@@ -731,12 +752,14 @@ def direct_light_ratio(
     eps: float | None = None,
     valid=None,
     spread: bool = False,
+    occluder: Scene | None = None,
 ) -> np.ndarray:
     """How much of the rig's direct light reaches each point with an occluder present.
 
     ``ratio = E_with / E_without``: the irradiance the point receives from the soft boxes and the
     environment when the occluder (the product's BVH) is in the way, over what it receives
-    without it.  Soft boxes are sampled on a ``box_samples`` x ``box_samples`` stratified grid
+    without it (the light its transmissive surfaces let through counts, see ``occluder``).
+    Soft boxes are sampled on a ``box_samples`` x ``box_samples`` stratified grid
     (per-point jittered, each sample weighted by its point-to-point form factor term
     L cos θ_x cos θ_y dA / d²); the environment by ``env_samples``² stratified cosine-weighted
     directions of weight π L_env / M.  The sweep itself is not tested as an occluder (it is
@@ -762,6 +785,13 @@ def direct_light_ratio(
         Offset of the shadow rays' origin along the normal (default 1e-4 R).
     valid : (H, W) bool array, optional
         For a grid: which nodes are receivers (others get 1 and are not interpolated from).
+    occluder : Scene, optional
+        The scene ``occluder_bvh`` was built from.  With it, shadow rays pass through
+        transmissive (KHR_materials_transmission), alpha-blended and masked-away surfaces with
+        the share each crossing transmits (:func:`.rig_kernels.crossing_transmittance`:
+        coverage, (1 − metallic) × transmission × (1 − Fresnel) × luminance of the base colour,
+        Beer–Lambert inside volumes); the rays go straight on (refraction offsets and caustics
+        are left out of the shadow map).  Without it every triangle is opaque.
     spread : bool
         For a grid: spread each node's samples over its cell (the surface interpolated
         bilinearly between neighbouring nodes), a one-cell box prefilter, so a sparse grid
@@ -792,8 +822,9 @@ def direct_light_ratio(
     env = rig.environment_linear
     env_l = 0.2126 * env[0] + 0.7152 * env[1] + 0.0722 * env[2]
     out = np.empty(p.shape[:2], np.float64)
+    mesh, walk, step_eps = _occluder_arrays(occluder)
     b = occluder_bvh
     rig_kernels.light_ratio(p, n, valid, 1 if (grid and spread) else 0, corners, radiance, int(box_samples),
                             float(env_l), int(env_samples), float(eps), int(seed),
-                            b.nodes_f, b.nodes_i, b.tris_f, b.tri_ids, out)
+                            b.nodes_f, b.nodes_i, b.tris_f, b.tri_ids, *mesh, walk, step_eps, out)
     return out if grid else out.reshape(-1)

@@ -15,16 +15,108 @@ import math
 
 import numpy as np
 
+from ..transport.bsdf_kernels import fresnel_dielectric
+from ..transport.layers_kernels import volume_attenuation
+from ..transport.light_kernels import triangle_geometry
+from ..transport.path_kernels import surface_alpha, surface_attributes
 from ..transport.sampling_kernels import onb_from_normal, sample_state, uniform_from_state
-from .bvh_kernels import any_hit
+from ..transport.texture_kernels import sample_slot
+from .bvh_kernels import any_hit, closest_hit
+
+#: Most surfaces a shadow ray walks through before it counts as blocked.
+MAX_CROSSINGS = 64
 
 
 @njit(**KERNEL)
-def visibility(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmax):
-    """1 when the segment o + t d, 0 < t < tmax, misses the occluder, else 0."""
-    if any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, 0.0, tmax):
-        return 0.0
-    return 1.0
+def crossing_transmittance(mat_table, mat, tex_pixels, tex_table, attrs, cos_i):
+    """Share of the light (luminance) a shadow ray keeps crossing one surface of material ``mat``.
+
+    ``(1 - a) + a T_s`` with ``a`` the glTF coverage (MASK: 0 below the cutoff, else 1; BLEND:
+    alpha; OPAQUE: 1) and ``T_s`` the straight-through transmission of the layered BSDF:
+    ``(1 - metallic) transmission (1 - F(cos_i, ior)) (1 - clearcoat F(cos_i, 1.5)) Y(base)``,
+    F the exact unpolarised Fresnel reflectance, Y the luminance of the base colour (which tints
+    the refracted light).  Refraction (the bent direction, caustics) and roughness are ignored:
+    the ray goes straight on.  ``attrs`` is ``path_kernels.surface_attributes``' tuple.
+    """
+    u0 = attrs[6]
+    v0 = attrs[7]
+    u1 = attrs[8]
+    v1 = attrs[9]
+    mode = int(mat_table[mat, 10])
+    a = 1.0
+    if mode != 0:
+        alpha = surface_alpha(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1, attrs[13])
+        if mode == 1:
+            a = 0.0 if alpha < mat_table[mat, 11] else 1.0
+        else:
+            a = min(max(alpha, 0.0), 1.0)
+    tr = float(mat_table[mat, 48])
+    ts = 0.0
+    if tr > 0.0 and a > 0.0:
+        mr = sample_slot(mat_table, mat, 24, tex_pixels, tex_table, u0, v0, u1, v1)
+        metallic = min(max(float(mat_table[mat, 5]) * mr[2], 0.0), 1.0)
+        bt = sample_slot(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1)
+        y = (0.2126 * float(mat_table[mat, 1]) * bt[0] * attrs[10]
+             + 0.7152 * float(mat_table[mat, 2]) * bt[1] * attrs[11]
+             + 0.0722 * float(mat_table[mat, 3]) * bt[2] * attrs[12])
+        ior = float(mat_table[mat, 13])
+        f = fresnel_dielectric(cos_i, ior) if abs(ior - 1.0) > 1e-6 else 0.0
+        fc = float(mat_table[mat, 53]) * fresnel_dielectric(cos_i, 1.5)
+        ts = (1.0 - metallic) * min(tr, 1.0) * (1.0 - f) * (1.0 - fc) * max(y, 0.0)
+    return (1.0 - a) + a * ts
+
+
+@njit(**KERNEL)
+def visibility(nodes_f, nodes_i, tris_f, tri_ids, positions, normals, uvs, colours, triangles, tri_material,
+               mat_table, tex_pixels, tex_table, walk, step_eps, ox, oy, oz, dx, dy, dz, tmax):
+    """Share of the light passing the occluder along o + t d, 0 < t < tmax.
+
+    ``walk`` 0: 0 or 1 (any hit blocks).  ``walk`` 1: the product has transmissive or
+    alpha-blended/masked materials; the ray walks from hit to hit multiplying
+    :func:`crossing_transmittance`, and a segment that ends on a back face of a
+    ``KHR_materials_volume`` material is attenuated by the luminance of exp(-sigma_a length)
+    (Beer-Lambert).  More than ``MAX_CROSSINGS`` surfaces block.
+    """
+    if walk == 0:
+        if any_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, 0.0, tmax):
+            return 0.0
+        return 1.0
+    dl = math.sqrt(dx * dx + dy * dy + dz * dz)
+    if dl <= 0.0:
+        return 1.0
+    ux = dx / dl
+    uy = dy / dl
+    uz = dz / dl
+    remaining = tmax * dl  # in length units along the unit direction
+    trans = 1.0
+    inside = 0.0  # distance from the last surface crossed to the origin (volume absorption)
+    for _ in range(MAX_CROSSINGS):
+        t, tri, b1, b2 = closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, ux, uy, uz, 0.0, remaining)
+        if tri < 0:
+            return trans
+        t = float(t)
+        mat = tri_material[tri]
+        if int(mat_table[mat, 10]) == 0 and mat_table[mat, 48] <= 0.0:
+            return 0.0  # an opaque surface
+        area, ngx, ngy, ngz = triangle_geometry(positions, triangles, tri)
+        cos_d = ngx * ux + ngy * uy + ngz * uz
+        attrs = surface_attributes(positions, normals, uvs, colours, triangles, tri, b1, b2)
+        trans *= crossing_transmittance(mat_table, mat, tex_pixels, tex_table, attrs, abs(cos_d))
+        if cos_d > 0.0:
+            # leaving through a back face: the segment since the entry ran inside the volume
+            va_r, va_g, va_b = volume_attenuation(mat_table, mat, inside + t)
+            trans *= 0.2126 * va_r + 0.7152 * va_g + 0.0722 * va_b
+        if trans <= 0.0:
+            return 0.0
+        step = t + step_eps
+        ox += ux * step
+        oy += uy * step
+        oz += uz * step
+        inside = step_eps  # the new origin lies step_eps past the surface
+        remaining -= step
+        if remaining <= 0.0:
+            return trans
+    return 0.0
 
 
 @njit(**KERNEL)
@@ -75,7 +167,9 @@ def _receiver(points, normals, valid, i, j, ju, jv):
 
 @njit(**PARALLEL)
 def light_ratio(points, normals, valid, spread, box_corners, box_radiance, box_samples, env_luminance,
-                env_samples, eps, seed, nodes_f, nodes_i, tris_f, tri_ids, out):
+                env_samples, eps, seed, nodes_f, nodes_i, tris_f, tri_ids,
+                positions, vnormals, uvs, colours, triangles, tri_material, mat_table, tex_pixels, tex_table,
+                walk, step_eps, out):
     """``out[i, j] = E_with / E_without`` at every receiver (1 where no light arrives at all).
 
     Inputs: ``points, normals`` (H, W, 3) float64 receivers and unit normals on a grid (a
@@ -87,7 +181,10 @@ def light_ratio(points, normals, valid, spread, box_corners, box_radiance, box_s
     (counter-clockwise seen from the lit side), ``box_radiance`` (B,) float64 luminance;
     ``box_samples`` k (k x k jittered strata per box), ``env_luminance`` (uniform environment),
     ``env_samples`` m (m x m jittered strata of cosine-weighted directions); ``eps`` the
-    origin offset along the normal; ``seed``; the occluder's BVH arrays.  Output ``out`` (H, W)
+    origin offset along the normal; ``seed``; the occluder's BVH arrays; its mesh arrays
+    (``positions, vnormals, uvs, colours, triangles, tri_material``, as the path kernels take
+    them), material table and texture atlas, ``walk`` and ``step_eps`` (see
+    :func:`visibility`; with ``walk`` 0 the mesh arrays are not read).  Output ``out`` (H, W)
     float64 in [0, 1]; iteration ``i`` writes only row ``i``.
     """
     h = points.shape[0]
@@ -171,7 +268,9 @@ def light_ratio(points, normals, valid, spread, box_corners, box_radiance, box_s
                     wgt = math.pi * env_luminance / (m * m)
                     tmax = math.inf
                 e_without += wgt
-                e_with += wgt * visibility(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmax)
+                e_with += wgt * visibility(nodes_f, nodes_i, tris_f, tri_ids, positions, vnormals, uvs, colours,
+                                           triangles, tri_material, mat_table, tex_pixels, tex_table, walk,
+                                           step_eps, ox, oy, oz, dx, dy, dz, tmax)
             if e_without > 0.0:
                 out[i, j] = min(max(e_with / e_without, 0.0), 1.0)
             else:
