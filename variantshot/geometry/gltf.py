@@ -788,7 +788,7 @@ class _Builder:
         alpha_mode = g.str_field(m, "alphaMode", mw, default="OPAQUE")
         if alpha_mode not in _ALPHA_MODES:
             raise g.error(mw, f"alphaMode {alpha_mode!r} is not one of {', '.join(_ALPHA_MODES)}")
-        self._check_extension_textures(ext, mw + ".extensions")
+        ext_textures = self._extension_textures(ext, mw + ".extensions")
         name = g.str_field(m, "name", mw, default="")
         return Material(
             name=name or f"material{index}",
@@ -809,6 +809,7 @@ class _Builder:
             alpha_cutoff=g.number_field(m, "alphaCutoff", mw, default=0.5, minimum=0.0),
             double_sided=g.bool_field(m, "doubleSided", mw, False),
             extensions=ext,
+            extension_textures=ext_textures,
         )
 
     def _emissive_factor(self, m: dict, mw: str) -> tuple[float, float, float]:
@@ -822,8 +823,11 @@ class _Builder:
             )
         return value
 
-    def _check_extension_textures(self, ext: dict, where: str) -> None:
-        """Texture references (``*Texture`` keys) inside KHR_materials_* objects must name existing textures."""
+    def _extension_textures(self, ext: dict, where: str) -> dict:
+        """The texture references (``*Texture`` keys) inside KHR_materials_* objects, parsed and checked
+        like the core ones: ``{(extension, key): TextureRef}``.  ``*NormalTexture`` keys are
+        ``normalTextureInfo`` (their ``scale`` is kept)."""
+        out = {}
         for ext_name, body in ext.items():
             if not ext_name.startswith("KHR_materials_"):
                 continue  # other vendors' extensions are kept raw and not interpreted here
@@ -831,7 +835,11 @@ class _Builder:
                 raise self.g.error(f"{where}.{ext_name}", "must be an object")
             for key, value in body.items():
                 if key.endswith("Texture"):
-                    self._texture_ref(value, f"{where}.{ext_name}.{key}")
+                    scale_key = "scale" if key.endswith("NormalTexture") else None
+                    ref = self._texture_ref(value, f"{where}.{ext_name}.{key}", scale_key)
+                    if ref is not None:
+                        out[(ext_name, key)] = ref
+        return out
 
     # .................................................................. textures
     def _texture(self, index: int) -> Texture:

@@ -41,7 +41,11 @@ class Material:
 
     Factors are as in the file (colour factors are linear).  ``extensions`` holds the material's
     ``extensions`` object untouched (e.g. ``{"KHR_materials_clearcoat": {...}}``) so that each
-    renderer feature interprets its own extension.
+    renderer feature interprets its own extension.  ``extension_textures`` holds the parsed
+    ``textureInfo`` objects inside those extensions, keyed ``(extension name, property)``, e.g.
+    ``("KHR_materials_clearcoat", "clearcoatNormalTexture")`` (its ``scale`` in
+    :attr:`TextureRef.scale`); the glTF loader fills it, hand-built materials may leave it empty
+    (the renderer then parses the raw dicts itself).
     """
 
     name: str = ""
@@ -59,6 +63,7 @@ class Material:
     alpha_cutoff: float = 0.5
     double_sided: bool = False
     extensions: dict = field(default_factory=dict)
+    extension_textures: dict = field(default_factory=dict)
 
 
 # glTF sampler constants (glTF 2.0 §5.26, sampler.magFilter/minFilter/wrapS/wrapT)

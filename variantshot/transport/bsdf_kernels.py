@@ -5,13 +5,14 @@ Single entry points, dispatched on the resolved record: :func:`eval_f`, :func:`s
 tangent used by anisotropy); ``wo`` points to the viewer and is always above the surface
 (the path kernel turns the frame to the viewer's side); ``wi`` points to the light and is
 above (reflection) or below (transmission).  A resolved BSDF at a surface point is a
-``N_BSDF`` = 22-tuple of floats (built by :func:`make_bsdf_ext` / :func:`material_bsdf`)::
+``N_BSDF`` = 25-tuple of floats (built by :func:`make_bsdf_layers` / :func:`material_bsdf_values`)::
 
     0 kind, 1-3 base colour (linear), 4 metallic, 5 alpha (= roughness**2, isotropic),
     6 f0 dielectric (max over RGB), 7 f90 dielectric, 8-10 f0 dielectric RGB,
     11 transmission, 12 eta (ior ratio across this crossing: ior entering, 1/ior leaving),
     13 thin-walled (1/0), 14 clearcoat, 15 clearcoat alpha, 16-18 sheen colour,
-    19 sheenRoughness, 20 alpha_x (along the tangent), 21 alpha_y
+    19 sheenRoughness, 20 alpha_x (along the tangent), 21 alpha_y,
+    22-24 clearcoat normal Nc in the local frame (unit; (0, 0, 1) = the shading normal)
 
 Layering (glTF 2.0 Appendix B and the KHR_materials_* READMEs; REFERENCES.md section 5)::
 
@@ -35,8 +36,13 @@ Layering (glTF 2.0 Appendix B and the KHR_materials_* READMEs; REFERENCES.md sec
   the transmitted direction is the microfacet reflection mirrored through the tangent plane
   (no bending), with the Fresnel of entering.  Absorption inside volumes is applied by the path
   kernel (Beer-Lambert over the traced segment, ``layers_kernels``).
-* Clearcoat: GGX of alpha = clearcoatRoughness^2 on the same shading normal, F of ior 1.5
-  (f0 = 0.04) at n.wo -- the README's albedo-scaling ``fresnel_coat``.
+* Clearcoat: GGX of alpha = clearcoatRoughness^2 about its own normal Nc (KHR_materials_clearcoat:
+  ``clearcoatNormalTexture``, else the unperturbed vertex normal; the path kernel passes it in
+  the local frame), layered with F of ior 1.5 (f0 = 0.04) at Nc.wo -- the README's
+  albedo-scaling ``fresnel_coat``.  The coat's cosine is Nc.wi: eval_f returns
+  cc Fc D G2 / (4 (Nc.wo) (n.wi)) so that f x n.wi (the path kernel's cosine) is the coat BRDF
+  x Nc.wi; its directional albedo stays <= cc Fc.  A coat facing away from the viewer
+  (Nc.wo <= 0) reflects nothing and hides nothing.
 * Sheen: the "Charlie" distribution (A. Estevez, C. Kulla, "Production Friendly Microfacet
   Sheen BRDF", 2017) D = (2 + 1/r) sin(theta_h)^(1/r) / (2 pi), r = sheenRoughness^2 (clamped
   at ``SHEEN_R_MIN``), with the Neubelt-Pettineo visibility V = 1 / (4 (n.l + n.v - n.l n.v))
@@ -49,11 +55,12 @@ Layering (glTF 2.0 Appendix B and the KHR_materials_* READMEs; REFERENCES.md sec
 
 Sampling: one lobe is chosen with probability proportional to its estimated albedo at wo
 (specular GGX, diffuse, dielectric, clearcoat, sheen); specular, dielectric and clearcoat
-lobes by visible normals (E. Heitz, JCGT 7(4), 2018), the dielectric choosing reflection with
+lobes by visible normals (E. Heitz, JCGT 7(4), 2018; the coat's about Nc, in a frame around
+Nc), the dielectric choosing reflection with
 probability F(wo.h); diffuse cosine-weighted; sheen uniform over the hemisphere.
 ``pdf_f`` returns the exact mixture density of ``sample_f``.
 
-Material table ``mat_table``: ``(M, 64) float32``, one row per material:
+Material table ``mat_table``: ``(M, 152) float32``, one row per material:
 
 =======  ================================================================================
 cols     meaning
@@ -84,13 +91,27 @@ cols     meaning
 59-61    KHR_materials_specular specularColorFactor RGB (1)
 62       KHR_materials_anisotropy anisotropyStrength (0)
 63       anisotropyRotation (radians, counter-clockwise from the tangent)
+64-71    KHR_materials_transmission transmissionTexture slot (R x transmissionFactor)
+72-79    KHR_materials_volume thicknessTexture slot (G; packed, never sampled: the path
+         tracer uses the traced length, not the thickness)
+80-87    KHR_materials_clearcoat clearcoatTexture slot (R x clearcoatFactor)
+88-95    clearcoatRoughnessTexture slot (G x clearcoatRoughnessFactor)
+96-103   clearcoatNormalTexture slot (tangent-space normal map of the coat)
+104-111  KHR_materials_sheen sheenColorTexture slot (sRGB-decoded RGB x sheenColorFactor)
+112-119  sheenRoughnessTexture slot (A x sheenRoughnessFactor)
+120-127  KHR_materials_specular specularTexture slot (A x specularFactor)
+128-135  specularColorTexture slot (sRGB-decoded RGB x specularColorFactor)
+136-143  KHR_materials_anisotropy anisotropyTexture slot (RG direction in [-1, 1] tangent /
+         bitangent space, rotated by anisotropyRotation; B x anisotropyStrength)
+144      clearcoatNormalTexture scale (1)
+145      1.0 when any sampled extension slot (64-143 except thickness) is present; 0.0 lets
+         the path kernel skip all extension lookups (``layers_kernels.extension_values``)
+146-151  spare
 =======  ================================================================================
 
 A texture slot is 8 columns: atlas entry (-1: none), texCoord set, then the 2x3
-KHR_texture_transform matrix (see ``texture_kernels.sample_slot``).  The extension textures
-(transmissionTexture, clearcoat*Texture, sheen*Texture, specular*Texture, thicknessTexture,
-anisotropyTexture) are not sampled: there are no columns left for their slots; the factors
-apply.
+KHR_texture_transform matrix (see ``texture_kernels.sample_slot``).  A missing texture reads
+as 1 in every channel, so the factor applies alone (the extensions' READMEs).
 """
 
 from __future__ import annotations
@@ -102,11 +123,11 @@ import math
 
 import numpy as np
 
-from .sampling_kernels import cosine_hemisphere_pdf, sample_cosine_hemisphere
+from .sampling_kernels import cosine_hemisphere_pdf, onb_from_normal, sample_cosine_hemisphere
 
 
 MATERIAL_METAL_ROUGH = 0
-N_BSDF = 22
+N_BSDF = 25
 SHEEN_R_MIN = 0.007  # sheen r = sheenRoughness**2 never below this
 ALPHA_MIN = 0.002  # alpha = roughness**2 never below this (roughness ~0.045)
 
@@ -301,12 +322,21 @@ def vndf_pdf_h(ax, ay, wox, woy, woz, hx, hy, hz):
 
 
 @njit(**KERNEL)
-def layer_scales(bsdf, mu_o):
-    """(coat weight cc Fc(mu_o), base scale under the coat, sheen E normaliser, base scale under sheen)."""
+def coat_cos(bsdf, wox, woy, woz):
+    """Nc.wo, the cosine of the view to the clearcoat normal."""
+    return bsdf[22] * wox + bsdf[23] * woy + bsdf[24] * woz
+
+
+@njit(**KERNEL)
+def layer_scales(bsdf, mu_o, mu_c):
+    """(coat weight cc Fc(mu_c), base scale under the coat, sheen E normaliser, base scale under sheen).
+
+    ``mu_o`` = n.wo (sheen), ``mu_c`` = Nc.wo (coat); a coat seen from behind (mu_c <= 0) has weight 0.
+    """
     cc = bsdf[14]
     fc = 0.0
-    if cc > 0.0:
-        fc = cc * (0.04 + 0.96 * (1.0 - min(max(mu_o, 0.0), 1.0)) ** 5)
+    if cc > 0.0 and mu_c > 0.0:
+        fc = cc * (0.04 + 0.96 * (1.0 - min(mu_c, 1.0)) ** 5)
     smax = max(bsdf[16], max(bsdf[17], bsdf[18]))
     e_norm = 1.0
     s_scale = 1.0
@@ -318,9 +348,9 @@ def layer_scales(bsdf, mu_o):
 
 
 @njit(**KERNEL)
-def lobe_weights(bsdf, mu_o):
+def lobe_weights(bsdf, mu_o, mu_c):
     """Estimated albedos at wo of the lobes (specular, diffuse, dielectric, coat, sheen)."""
-    fc, c_scale, e_norm, s_scale = layer_scales(bsdf, mu_o)
+    fc, c_scale, e_norm, s_scale = layer_scales(bsdf, mu_o, mu_c)
     scale = c_scale * s_scale
     m = bsdf[4]
     tr = bsdf[11]
@@ -342,8 +372,8 @@ def lobe_weights(bsdf, mu_o):
 
 
 @njit(**KERNEL)
-def lobe_probabilities(bsdf, mu_o):
-    w0, w1, w2, w3, w4 = lobe_weights(bsdf, mu_o)
+def lobe_probabilities(bsdf, mu_o, mu_c):
+    w0, w1, w2, w3, w4 = lobe_weights(bsdf, mu_o, mu_c)
     tot = w0 + w1 + w2 + w3 + w4
     if tot <= 0.0:
         return 1.0, 0.0, 0.0, 0.0, 0.0
@@ -352,8 +382,8 @@ def lobe_probabilities(bsdf, mu_o):
 
 @njit(**KERNEL)
 def specular_probability(bsdf, cos_o):
-    """Probability of sampling the base's specular GGX lobe at n.wo."""
-    return lobe_probabilities(bsdf, cos_o)[0]
+    """Probability of sampling the base's specular GGX lobe at n.wo (coat normal = n)."""
+    return lobe_probabilities(bsdf, cos_o, cos_o)[0]
 
 
 @njit(**KERNEL)
@@ -382,7 +412,8 @@ def eval_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     br = bsdf[1]
     bg = bsdf[2]
     bb = bsdf[3]
-    fc, c_scale, e_norm, s_scale = layer_scales(bsdf, woz)
+    mu_c = coat_cos(bsdf, wox, woy, woz)
+    fc, c_scale, e_norm, s_scale = layer_scales(bsdf, woz, mu_c)
     scale = c_scale * s_scale
     lam_o = lambda_aniso(ax, ay, wox, woy, woz)
     if wiz < 0.0:
@@ -460,11 +491,15 @@ def eval_f(bsdf, wox, woy, woz, wix, wiy, wiz):
         fg += c_scale * bsdf[17] * ks
         fb += c_scale * bsdf[18] * ks
     if fc > 0.0:
+        # the coat about Nc; f x n.wi = coat BRDF x Nc.wi (exactly the old form when Nc = n)
         ac = bsdf[15]
-        kc = fc * ggx_d(ac, hz) * visibility_height_correlated(ac, wiz, woz)
-        fr += kc
-        fg += kc
-        fb += kc
+        hzc = bsdf[22] * hx + bsdf[23] * hy + bsdf[24] * hz
+        wizc = bsdf[22] * wix + bsdf[23] * wiy + bsdf[24] * wiz
+        if wizc > 0.0:
+            kc = fc * ggx_d(ac, hzc) * visibility_height_correlated(ac, wizc, mu_c) * (wizc / wiz)
+            fr += kc
+            fg += kc
+            fb += kc
     return fr, fg, fb
 
 
@@ -481,6 +516,25 @@ def vndf_pdf(alpha, wox, woy, woz, wix, wiy, wiz):
         return 0.0
     hz /= hl
     return smith_g1(alpha, woz) * ggx_d(alpha, hz) / (4.0 * woz)
+
+
+@njit(**KERNEL)
+def coat_pdf(bsdf, wox, woy, woz, wix, wiy, wiz):
+    """Density of reflecting wo about a visible normal of the coat's GGX around Nc:
+    G1(Nc.wo) D(Nc.h) / (4 Nc.wo) (for wi on the reflection side of the shading normal)."""
+    if wiz <= 0.0:
+        return 0.0
+    mu_c = coat_cos(bsdf, wox, woy, woz)
+    if mu_c <= 0.0:
+        return 0.0
+    hx = wox + wix
+    hy = woy + wiy
+    hz = woz + wiz
+    hl = math.sqrt(hx * hx + hy * hy + hz * hz)
+    if hl <= 0.0:
+        return 0.0
+    hzc = (bsdf[22] * hx + bsdf[23] * hy + bsdf[24] * hz) / hl
+    return smith_g1(bsdf[15], mu_c) * ggx_d(bsdf[15], hzc) / (4.0 * mu_c)
 
 
 @njit(**KERNEL)
@@ -555,7 +609,7 @@ def pdf_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     """Solid-angle density with which :func:`sample_f` returns wi given wo."""
     if woz <= 0.0 or wiz == 0.0:
         return 0.0
-    p0, p1, p2, p3, p4 = lobe_probabilities(bsdf, woz)
+    p0, p1, p2, p3, p4 = lobe_probabilities(bsdf, woz, coat_cos(bsdf, wox, woy, woz))
     pdf = 0.0
     if p2 > 0.0:
         pdf += p2 * dielectric_pdf(bsdf, wox, woy, woz, wix, wiy, wiz)
@@ -566,7 +620,7 @@ def pdf_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     if p1 > 0.0:
         pdf += p1 * cosine_hemisphere_pdf(wiz)
     if p3 > 0.0:
-        pdf += p3 * vndf_pdf(bsdf[15], wox, woy, woz, wix, wiy, wiz)
+        pdf += p3 * coat_pdf(bsdf, wox, woy, woz, wix, wiy, wiz)
     if p4 > 0.0:
         pdf += p4 / (2.0 * math.pi)
     return pdf
@@ -586,7 +640,7 @@ def sample_f(bsdf, wox, woy, woz, u_lobe, u0, u1):
     """Sample wi given wo; returns (wix, wiy, wiz, fr, fg, fb, pdf); pdf = 0 means no sample."""
     if woz <= 0.0:
         return 0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 0.0
-    p0, p1, p2, p3, p4 = lobe_probabilities(bsdf, woz)
+    p0, p1, p2, p3, p4 = lobe_probabilities(bsdf, woz, coat_cos(bsdf, wox, woy, woz))
     transmit = False
     if u_lobe < p0:
         hx, hy, hz = sample_vndf_aniso(bsdf[20], bsdf[21], wox, woy, woz, u0, u1)
@@ -621,7 +675,19 @@ def sample_f(bsdf, wox, woy, woz, u_lobe, u0, u1):
                 wiy /= wl
                 wiz /= wl
     elif u_lobe < p0 + p1 + p2 + p3:
-        hx, hy, hz = sample_vndf(bsdf[15], wox, woy, woz, u0, u1)
+        if bsdf[24] >= 1.0:
+            hx, hy, hz = sample_vndf(bsdf[15], wox, woy, woz, u0, u1)
+        else:
+            # a visible normal of the coat in a frame (t, b, Nc) around its own normal
+            cx = bsdf[22]
+            cy = bsdf[23]
+            cz = bsdf[24]
+            tx, ty, tz, bx, by, bz = onb_from_normal(cx, cy, cz)
+            qx, qy, qz = sample_vndf(bsdf[15], wox * tx + woy * ty + woz * tz, wox * bx + woy * by + woz * bz,
+                                     wox * cx + woy * cy + woz * cz, u0, u1)
+            hx = qx * tx + qy * bx + qz * cx
+            hy = qx * ty + qy * by + qz * cy
+            hz = qx * tz + qy * bz + qz * cz
         d = wox * hx + woy * hy + woz * hz
         wix = 2.0 * d * hx - wox
         wiy = 2.0 * d * hy - woy
@@ -646,13 +712,24 @@ def sample_f(bsdf, wox, woy, woz, u_lobe, u0, u1):
 def make_bsdf_ext(kind, base_r, base_g, base_b, metallic, roughness, ior, specular,
                   spec_r, spec_g, spec_b, transmission, eta, thin, clearcoat, clearcoat_roughness,
                   sheen_r, sheen_g, sheen_b, sheen_roughness, anisotropy):
+    """:func:`make_bsdf_layers` with the clearcoat on the shading normal."""
+    return make_bsdf_layers(kind, base_r, base_g, base_b, metallic, roughness, ior, specular,
+                            spec_r, spec_g, spec_b, transmission, eta, thin, clearcoat, clearcoat_roughness,
+                            sheen_r, sheen_g, sheen_b, sheen_roughness, anisotropy, 0.0, 0.0, 1.0)
+
+
+@njit(**KERNEL)
+def make_bsdf_layers(kind, base_r, base_g, base_b, metallic, roughness, ior, specular,
+                     spec_r, spec_g, spec_b, transmission, eta, thin, clearcoat, clearcoat_roughness,
+                     sheen_r, sheen_g, sheen_b, sheen_roughness, anisotropy, coat_nx, coat_ny, coat_nz):
     """The resolved ``N_BSDF``-tuple from material values (layout in the module docstring).
 
     alpha = roughness**2 (clamped at ALPHA_MIN); dielectric f0 = min(((ior - 1)/(ior + 1))**2 x
     specularColor, 1) x specular and f90 = specular (KHR_materials_ior, KHR_materials_specular);
     ``eta`` the ior ratio across the surface for the dielectric lobe; anisotropy
     (KHR_materials_anisotropy): alpha_x = mix(alpha, 1, strength**2) along the tangent,
-    alpha_y = alpha.
+    alpha_y = alpha; (coat_nx, coat_ny, coat_nz) the clearcoat normal in the local frame
+    (normalised here; (0, 0, 1) when degenerate).
     """
     alpha = max(roughness * roughness, ALPHA_MIN)
     m = min(max(metallic, 0.0), 1.0)
@@ -670,11 +747,21 @@ def make_bsdf_ext(kind, base_r, base_g, base_b, metallic, roughness, ior, specul
     ax = alpha + (1.0 - alpha) * an * an
     ca = max(clearcoat_roughness * clearcoat_roughness, ALPHA_MIN)
     sr = min(max(sheen_roughness, 0.0), 1.0)
+    cx = 0.0
+    cy = 0.0
+    cz = 1.0
+    if coat_nz < 1.0:
+        cl = math.sqrt(coat_nx * coat_nx + coat_ny * coat_ny + coat_nz * coat_nz)
+        if cl > 0.0 and math.isfinite(cl):
+            cx = coat_nx / cl
+            cy = coat_ny / cl
+            cz = coat_nz / cl
     return (np.float64(kind), np.float64(base_r), np.float64(base_g), np.float64(base_b), m, alpha,
             max(f0r, max(f0g, f0b)), spec, f0r, f0g, f0b,
             min(max(transmission, 0.0), 1.0), eta_, 1.0 if thin > 0.5 else 0.0,
             min(max(clearcoat, 0.0), 1.0), ca,
-            max(sheen_r, 0.0), max(sheen_g, 0.0), max(sheen_b, 0.0), sr, ax, alpha)
+            max(sheen_r, 0.0), max(sheen_g, 0.0), max(sheen_b, 0.0), sr, ax, alpha,
+            np.float64(cx), np.float64(cy), np.float64(cz))
 
 
 @njit(**KERNEL)
@@ -685,12 +772,17 @@ def make_bsdf(kind, base_r, base_g, base_b, metallic, roughness, ior, specular):
 
 
 @njit(**KERNEL)
-def material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, entering):
-    """Resolved BSDF of material ``mat`` with textured base colour / metallic / roughness.
+def material_bsdf_values(mat_table, mat, base_r, base_g, base_b, metallic, roughness, entering,
+                         transmission, clearcoat, clearcoat_roughness, sheen_r, sheen_g, sheen_b,
+                         sheen_roughness, specular, spec_r, spec_g, spec_b, anisotropy,
+                         coat_nx, coat_ny, coat_nz):
+    """Resolved BSDF of material ``mat`` with every textured value given (factor x texture).
 
-    ``entering``: the ray hit the front face (glTF winding), so the dielectric lobe refracts
-    into the material (eta = ior); else out of it (eta = 1 / ior).  Thin-walled surfaces always
-    use eta = ior.
+    The values come from ``layers_kernels.extension_values`` (extensions) and the path kernel
+    (base colour, metallic, roughness; the clearcoat normal in the local frame).  ``entering``:
+    the ray hit the front face (glTF winding), so the dielectric lobe refracts into the
+    material (eta = ior); else out of it (eta = 1 / ior).  Thin-walled surfaces always use
+    eta = ior.
     """
     ior = float(mat_table[mat, 13])
     if ior <= 0.0:
@@ -699,12 +791,22 @@ def material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, e
     eta = ior
     if thin < 0.5 and not entering:
         eta = 1.0 / ior
-    return make_bsdf_ext(float(mat_table[mat, 0]), base_r, base_g, base_b, metallic, roughness, ior,
-                         float(mat_table[mat, 15]), float(mat_table[mat, 59]), float(mat_table[mat, 60]),
-                         float(mat_table[mat, 61]), float(mat_table[mat, 48]), eta, thin,
-                         float(mat_table[mat, 53]), float(mat_table[mat, 54]), float(mat_table[mat, 55]),
-                         float(mat_table[mat, 56]), float(mat_table[mat, 57]), float(mat_table[mat, 58]),
-                         float(mat_table[mat, 62]))
+    return make_bsdf_layers(float(mat_table[mat, 0]), base_r, base_g, base_b, metallic, roughness, ior,
+                            specular, spec_r, spec_g, spec_b, transmission, eta, thin,
+                            clearcoat, clearcoat_roughness, sheen_r, sheen_g, sheen_b, sheen_roughness,
+                            anisotropy, coat_nx, coat_ny, coat_nz)
+
+
+@njit(**KERNEL)
+def material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, entering):
+    """Resolved BSDF of material ``mat`` from its extension factors alone (no extension textures),
+    the clearcoat on the shading normal; base colour / metallic / roughness given."""
+    return material_bsdf_values(mat_table, mat, base_r, base_g, base_b, metallic, roughness, entering,
+                                float(mat_table[mat, 48]), float(mat_table[mat, 53]), float(mat_table[mat, 54]),
+                                float(mat_table[mat, 55]), float(mat_table[mat, 56]), float(mat_table[mat, 57]),
+                                float(mat_table[mat, 58]), float(mat_table[mat, 15]), float(mat_table[mat, 59]),
+                                float(mat_table[mat, 60]), float(mat_table[mat, 61]), float(mat_table[mat, 62]),
+                                0.0, 0.0, 1.0)
 
 
 # ----------------------------------------------------------------------- batch wrappers (tests)
@@ -713,7 +815,9 @@ def material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, e
 @njit(**KERNEL)
 def as_tuple(params):
     """The resolved tuple from a (N_BSDF,) float64 array."""
-    return (params[0], params[1], params[2], params[3], params[4], params[5], params[6], params[7], params[8], params[9], params[10], params[11], params[12], params[13], params[14], params[15], params[16], params[17], params[18], params[19], params[20], params[21])
+    return (params[0], params[1], params[2], params[3], params[4], params[5], params[6], params[7], params[8],
+            params[9], params[10], params[11], params[12], params[13], params[14], params[15], params[16],
+            params[17], params[18], params[19], params[20], params[21], params[22], params[23], params[24])
 
 
 @njit(**KERNEL)

@@ -1,4 +1,12 @@
-"""Volume absorption inside transmissive materials (KHR_materials_volume), for the path kernel.
+"""Per-hit material layers for the path kernel: the KHR extensions' textured values, the
+anisotropy frame, volume absorption (KHR_materials_volume) and the coat over emission.
+
+Extension textures (:func:`extension_values`): each value is factor x texture channel as the
+KHR_materials_* READMEs define it -- transmission R, clearcoat R, clearcoatRoughness G,
+sheenColor RGB (sRGB-decoded in the atlas), sheenRoughness A, specular A, specularColor RGB
+(sRGB-decoded), anisotropy B (strength) and RG (direction, [0, 1] -> [-1, 1], normalised, then
+rotated by anisotropyRotation).  Column 145 of the table says whether a material has any of
+these slots; without it the factors are returned without a single texture lookup.
 
 Beer-Lambert (KHR_materials_volume README): the transmittance over a traced distance x inside
 a homogeneous medium is T(x) = exp(-sigma_a x) per channel, sigma_a = -ln(attenuationColor) /
@@ -14,7 +22,75 @@ from .._jit import KERNEL, njit
 
 import math
 
+from .bsdf_kernels import material_bsdf_values
 from .sampling_kernels import onb_from_normal
+from .texture_kernels import sample_slot
+
+
+@njit(**KERNEL)
+def extension_values(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1):
+    """Textured extension values at a surface point (layout of the columns in ``bsdf_kernels``).
+
+    Returns (transmission, clearcoat, clearcoatRoughness, sheen r, g, b, sheenRoughness,
+    specular, specularColor r, g, b, anisotropy strength, direction x, y) -- the direction a unit
+    vector in (tangent, bitangent) coordinates, (cos rotation, sin rotation) without a texture
+    (KHR_materials_anisotropy: the default texel is (1, 0.5, 1)).  A texel direction of zero
+    length keeps the untextured direction.
+    """
+    tr = float(mat_table[mat, 48])
+    cc = float(mat_table[mat, 53])
+    ccr = float(mat_table[mat, 54])
+    shr = float(mat_table[mat, 55])
+    shg = float(mat_table[mat, 56])
+    shb = float(mat_table[mat, 57])
+    shro = float(mat_table[mat, 58])
+    sp = float(mat_table[mat, 15])
+    spr = float(mat_table[mat, 59])
+    spg = float(mat_table[mat, 60])
+    spb = float(mat_table[mat, 61])
+    an = float(mat_table[mat, 62])
+    dx = 1.0
+    dy = 0.0
+    if an > 0.0:
+        rot = float(mat_table[mat, 63])
+        dx = math.cos(rot)
+        dy = math.sin(rot)
+    if mat_table[mat, 145] > 0.5:
+        if tr > 0.0 and mat_table[mat, 64] >= 0.0:
+            tr *= sample_slot(mat_table, mat, 64, tex_pixels, tex_table, u0, v0, u1, v1)[0]
+        if cc > 0.0:
+            if mat_table[mat, 80] >= 0.0:
+                cc *= sample_slot(mat_table, mat, 80, tex_pixels, tex_table, u0, v0, u1, v1)[0]
+            if mat_table[mat, 88] >= 0.0:
+                ccr *= sample_slot(mat_table, mat, 88, tex_pixels, tex_table, u0, v0, u1, v1)[1]
+        if mat_table[mat, 104] >= 0.0:
+            t = sample_slot(mat_table, mat, 104, tex_pixels, tex_table, u0, v0, u1, v1)
+            shr *= t[0]
+            shg *= t[1]
+            shb *= t[2]
+        if mat_table[mat, 112] >= 0.0:
+            shro *= sample_slot(mat_table, mat, 112, tex_pixels, tex_table, u0, v0, u1, v1)[3]
+        if mat_table[mat, 120] >= 0.0:
+            sp *= sample_slot(mat_table, mat, 120, tex_pixels, tex_table, u0, v0, u1, v1)[3]
+        if mat_table[mat, 128] >= 0.0:
+            t = sample_slot(mat_table, mat, 128, tex_pixels, tex_table, u0, v0, u1, v1)
+            spr *= t[0]
+            spg *= t[1]
+            spb *= t[2]
+        if an > 0.0 and mat_table[mat, 136] >= 0.0:
+            t = sample_slot(mat_table, mat, 136, tex_pixels, tex_table, u0, v0, u1, v1)
+            an *= t[2]
+            x = 2.0 * t[0] - 1.0
+            y = 2.0 * t[1] - 1.0
+            ln = math.sqrt(x * x + y * y)
+            if ln > 1e-9:
+                x /= ln
+                y /= ln
+                # rotated counter-clockwise by anisotropyRotation (the README's mat2)
+                ndx = dx * x - dy * y
+                dy = dy * x + dx * y
+                dx = ndx
+    return tr, cc, ccr, shr, shg, shb, shro, sp, spr, spg, spb, an, dx, dy
 
 
 @njit(**KERNEL)
@@ -85,20 +161,18 @@ def tangent_frame(positions, uvs, tangents, triangles, tri, b1, b2, uv_set, nx, 
 
 
 @njit(**KERNEL)
-def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, nx, ny, nz):
+def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, nx, ny, nz, c, s):
     """Shading frame (tx, ty, tz, bx, by, bz) whose x axis is the anisotropy direction.
 
-    KHR_materials_anisotropy: the direction is the tangent T rotated by ``anisotropyRotation``
-    towards the bitangent B in the tangent plane (:func:`tangent_frame`, in the normalTexture's UV
-    set); without a tangent, the frame of ``onb_from_normal``.
+    KHR_materials_anisotropy: the direction is c T + s B in the tangent plane, (c, s) the unit
+    direction of :func:`extension_values` (the tangent rotated by ``anisotropyRotation``, and by
+    the anisotropyTexture's direction); T, B from :func:`tangent_frame` in the normalTexture's UV
+    set; without a tangent, the frame of ``onb_from_normal``.
     """
     ok, tx, ty, tz, bx, by, bz = tangent_frame(positions, uvs, tangents, triangles, tri, b1, b2,
                                                int(mat_table[mat, 41]), nx, ny, nz)
     if not ok:
         return onb_from_normal(nx, ny, nz)
-    rot = float(mat_table[mat, 63])
-    c = math.cos(rot)
-    s = math.sin(rot)
     ax = c * tx + s * bx
     ay = c * ty + s * by
     az = c * tz + s * bz
@@ -116,3 +190,22 @@ def coat_emission_scale(mat_table, mat, cos_n):
         return 1.0
     c = min(max(cos_n, 0.0), 1.0)
     return 1.0 - cc * (0.04 + 0.96 * (1.0 - c) ** 5)
+
+
+@njit(**KERNEL)
+def resolve_textured_batch(mat_table, mat, tex_pixels, tex_table, uv0, uv1, entering, out):
+    """Tests: the resolved BSDF of material ``mat`` at N points with UV sets uv0, uv1 (N, 2) each.
+
+    Base colour / metallic / roughness are the factors, the clearcoat normal the shading normal;
+    out (N, N_BSDF + 2): the resolved tuple, then the anisotropy direction (x, y).
+    """
+    for i in range(uv0.shape[0]):
+        e = extension_values(mat_table, mat, tex_pixels, tex_table, uv0[i, 0], uv0[i, 1], uv1[i, 0], uv1[i, 1])
+        b = material_bsdf_values(mat_table, mat, float(mat_table[mat, 1]), float(mat_table[mat, 2]),
+                                 float(mat_table[mat, 3]), float(mat_table[mat, 5]), float(mat_table[mat, 6]),
+                                 entering, e[0], e[1], e[2], e[3], e[4], e[5], e[6], e[7], e[8], e[9], e[10],
+                                 e[11], 0.0, 0.0, 1.0)
+        for k in range(len(b)):
+            out[i, k] = b[k]
+        out[i, len(b)] = e[12]
+        out[i, len(b) + 1] = e[13]

@@ -1,22 +1,32 @@
 """Materials: glTF metallic-roughness materials packed into the kernels' float32 table.
 
-The column layout is documented in ``bsdf_kernels`` (one row per material, 64 columns, spare
-columns for the KHR extensions still to come).  Interpreted here:
+The column layout is documented in ``bsdf_kernels`` (one row per material, ``N_COLUMNS`` = 152
+columns: 0-63 factors and the core texture slots, 64-143 the KHR extensions' texture slots,
+144-145 their scale and flag).  Interpreted here:
 
 * pbrMetallicRoughness factors and textures, emissive factor and texture,
   ``KHR_materials_emissive_strength`` (multiplies the emission) and ``KHR_materials_ior``
   (sets the dielectric f0 = ((ior - 1)/(ior + 1))**2; default 1.5 gives 0.04);
-* ``KHR_materials_specular`` ``specularFactor`` (scales the dielectric Fresnel: f0 x s,
-  f90 = s; 0 gives a pure Lambertian surface) and ``specularColorFactor`` (tints f0);
-* ``KHR_materials_transmission`` ``transmissionFactor``, ``KHR_materials_volume``
-  ``thicknessFactor`` (0: thin-walled; > 0: the closed mesh is a volume, the thickness value
-  itself is not used -- a path tracer uses the traced length), ``attenuationColor`` and
-  ``attenuationDistance`` (sigma_a = -ln(colour) / distance, Beer-Lambert along the path);
-* ``KHR_materials_clearcoat`` ``clearcoatFactor`` / ``clearcoatRoughnessFactor``,
-  ``KHR_materials_sheen`` ``sheenColorFactor`` / ``sheenRoughnessFactor``,
-  ``KHR_materials_anisotropy`` ``anisotropyStrength`` / ``anisotropyRotation``;
-  the extensions' own textures are not sampled (factors only; see ``bsdf_kernels``);
-* ``alphaMode`` / ``alphaCutoff`` and ``doubleSided``.
+* ``KHR_materials_specular`` ``specularFactor`` x ``specularTexture``.a (scales the dielectric
+  Fresnel: f0 x s, f90 = s; 0 gives a pure Lambertian surface) and ``specularColorFactor`` x
+  ``specularColorTexture``.rgb (sRGB-decoded; tints f0);
+* ``KHR_materials_transmission`` ``transmissionFactor`` x ``transmissionTexture``.r,
+  ``KHR_materials_volume`` ``thicknessFactor`` (0: thin-walled; > 0: the closed mesh is a volume,
+  the thickness value itself is not used -- a path tracer uses the traced length; its
+  ``thicknessTexture`` (G) is packed into a slot for completeness but never sampled),
+  ``attenuationColor`` and ``attenuationDistance`` (sigma_a = -ln(colour) / distance,
+  Beer-Lambert along the path);
+* ``KHR_materials_clearcoat`` ``clearcoatFactor`` x ``clearcoatTexture``.r,
+  ``clearcoatRoughnessFactor`` x ``clearcoatRoughnessTexture``.g and ``clearcoatNormalTexture``
+  (the coat's own normal map with its own ``scale``; without it the coat takes the unperturbed
+  vertex normal, even where the base has a normalTexture, as the extension says);
+* ``KHR_materials_sheen`` ``sheenColorFactor`` x ``sheenColorTexture``.rgb (sRGB-decoded) and
+  ``sheenRoughnessFactor`` x ``sheenRoughnessTexture``.a;
+* ``KHR_materials_anisotropy`` ``anisotropyStrength`` x ``anisotropyTexture``.b and the direction
+  ``anisotropyTexture``.rg mapped from [0, 1] to [-1, 1] (tangent, bitangent), normalised and
+  rotated by ``anisotropyRotation``;
+* every extension texture with its ``texCoord`` and ``KHR_texture_transform``, like the core slots;
+* ``alphaMode`` / ``alphaCutoff`` and ``doubleSided``.  ``occlusionTexture`` is ignored.
 
 Back faces: glTF leaves single-sided back faces to rasteriser culling.  The path tracer never
 lets light leak through a surface; a back face of a single-sided material is shaded like its
@@ -32,24 +42,50 @@ import math
 import numpy as np
 
 from ..errors import RenderError
-from ..geometry.scene import Material, Scene
+from ..geometry.scene import Material, Scene, TextureRef, TextureTransform
 from .textures import AtlasBuilder, TextureAtlas, transform_matrix
 
-#: glTF extensions the path tracer interprets (the KHR_materials_* ones by their factors; their
-#: textures are not sampled; KHR_texture_transform on every core texture slot).  The catalog
-#: checker reads this list.
+#: glTF extensions the path tracer interprets (the KHR_materials_* ones with their factors and
+#: their own textures; KHR_texture_transform on every texture slot).  The catalog checker reads
+#: this list.
 SUPPORTED_EXTENSIONS = frozenset(
     {"KHR_materials_emissive_strength", "KHR_materials_ior", "KHR_materials_specular", "KHR_texture_transform",
      "KHR_lights_punctual", "KHR_materials_transmission", "KHR_materials_volume", "KHR_materials_clearcoat",
      "KHR_materials_sheen", "KHR_materials_anisotropy"}
 )
 
-N_COLUMNS = 64
+N_COLUMNS = 152
 ALPHA_MODES = {"OPAQUE": 0, "MASK": 1, "BLEND": 2}
 SLOT_BASE_COLOUR = 16
 SLOT_METALLIC_ROUGHNESS = 24
 SLOT_EMISSIVE = 32
 SLOT_NORMAL = 40
+SLOT_TRANSMISSION = 64
+SLOT_THICKNESS = 72
+SLOT_CLEARCOAT = 80
+SLOT_CLEARCOAT_ROUGHNESS = 88
+SLOT_CLEARCOAT_NORMAL = 96
+SLOT_SHEEN_COLOUR = 104
+SLOT_SHEEN_ROUGHNESS = 112
+SLOT_SPECULAR = 120
+SLOT_SPECULAR_COLOUR = 128
+SLOT_ANISOTROPY = 136
+COL_CLEARCOAT_NORMAL_SCALE = 144
+COL_EXT_TEXTURES = 145  # 1.0 when any sampled extension slot is present (the kernel skips them all else)
+
+#: (extension, textureInfo key, slot column, sRGB-decoded, sampled by the path kernel)
+EXTENSION_SLOTS = (
+    ("KHR_materials_transmission", "transmissionTexture", SLOT_TRANSMISSION, False, True),
+    ("KHR_materials_volume", "thicknessTexture", SLOT_THICKNESS, False, False),
+    ("KHR_materials_clearcoat", "clearcoatTexture", SLOT_CLEARCOAT, False, True),
+    ("KHR_materials_clearcoat", "clearcoatRoughnessTexture", SLOT_CLEARCOAT_ROUGHNESS, False, True),
+    ("KHR_materials_clearcoat", "clearcoatNormalTexture", SLOT_CLEARCOAT_NORMAL, False, True),
+    ("KHR_materials_sheen", "sheenColorTexture", SLOT_SHEEN_COLOUR, True, True),
+    ("KHR_materials_sheen", "sheenRoughnessTexture", SLOT_SHEEN_ROUGHNESS, False, True),
+    ("KHR_materials_specular", "specularTexture", SLOT_SPECULAR, False, True),
+    ("KHR_materials_specular", "specularColorTexture", SLOT_SPECULAR_COLOUR, True, True),
+    ("KHR_materials_anisotropy", "anisotropyTexture", SLOT_ANISOTROPY, False, True),
+)
 
 
 def _slot(row: np.ndarray, col: int, builder: AtlasBuilder, ref, srgb: bool) -> None:
@@ -96,6 +132,80 @@ def _colour(ext: dict, key: str, default, where: str, name: str) -> np.ndarray:
     return c
 
 
+def _int(info: dict, key: str, default: int, where: str) -> int:
+    value = info.get(key, default)
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != int(value) or value < 0:
+        raise RenderError(f"{where}: {key} {value!r} is not accepted (an integer >= 0)")
+    return int(value)
+
+
+def _pair(info: dict, key: str, default, where: str) -> tuple[float, float]:
+    value = info.get(key, default)
+    try:
+        a, b = (float(x) for x in value)
+    except (TypeError, ValueError):
+        a = b = math.nan
+    if not (math.isfinite(a) and math.isfinite(b)):
+        raise RenderError(f"{where}: {key} {value!r} is not accepted (2 finite numbers)")
+    return a, b
+
+
+def texture_ref_from_info(info, where: str, scale_key: str | None = None) -> TextureRef:
+    """A raw glTF ``textureInfo`` dict (of a hand-built :class:`Material`) as a :class:`TextureRef`.
+
+    The glTF loader parses the extensions' textureInfo objects itself
+    (``Material.extension_textures``); this covers materials built in code, with the same checks.
+    """
+    if not isinstance(info, dict):
+        raise RenderError(f"{where}: {info!r} is not accepted (a textureInfo object with an 'index')")
+    if "index" not in info:
+        raise RenderError(f"{where}: index is missing (a textureInfo object needs a texture index >= 0)")
+    index = _int(info, "index", 0, where)
+    tex_coord = _int(info, "texCoord", 0, where)
+    scale = 1.0
+    if scale_key is not None:
+        scale = _number(info, scale_key, 1.0, where, "textureInfo", -math.inf)
+    transform = None
+    tt = (info.get("extensions") or {}).get("KHR_texture_transform")
+    if tt is not None:
+        tw = where + ".extensions.KHR_texture_transform"
+        if not isinstance(tt, dict):
+            raise RenderError(f"{tw}: must be an object")
+        transform = TextureTransform(offset=_pair(tt, "offset", (0.0, 0.0), tw),
+                                     rotation_rad=_number(tt, "rotation", 0.0, tw, "KHR_texture_transform", -math.inf),
+                                     scale=_pair(tt, "scale", (1.0, 1.0), tw))
+        tex_coord = _int(tt, "texCoord", tex_coord, tw)  # overrides the textureInfo's (KHR_texture_transform)
+    return TextureRef(index=index, tex_coord=tex_coord, scale=scale, transform=transform)
+
+
+def extension_texture(material: Material, ext_name: str, key: str, where: str) -> TextureRef | None:
+    """The parsed ``textureInfo`` ``key`` of extension ``ext_name`` of a material (None when absent)."""
+    ref = (material.extension_textures or {}).get((ext_name, key))
+    if ref is None:
+        info = _ext(material, ext_name).get(key)
+        if info is not None:
+            ref = texture_ref_from_info(info, f"{where}: {ext_name}.{key}",
+                                        "scale" if key.endswith("NormalTexture") else None)
+    return ref
+
+
+def pack_extension_textures(material: Material, row: np.ndarray, builder: AtlasBuilder, where: str) -> None:
+    """Columns 64-145 of a material row: the extensions' texture slots (layout in ``bsdf_kernels``)."""
+    any_sampled = False
+    for ext_name, key, col, srgb, sampled in EXTENSION_SLOTS:
+        ref = extension_texture(material, ext_name, key, where)
+        if ref is not None and not 0 <= ref.index < builder.n_textures:
+            raise RenderError(
+                f"{where}: {ext_name}.{key} names texture {ref.index}, which does not exist "
+                f"(accepted: a texture index 0..{builder.n_textures - 1}; the scene has {builder.n_textures})"
+            )
+        _slot(row, col, builder, ref, srgb)
+        any_sampled |= ref is not None and sampled
+        if key == "clearcoatNormalTexture":
+            row[COL_CLEARCOAT_NORMAL_SCALE] = 1.0 if ref is None else ref.scale
+    row[COL_EXT_TEXTURES] = 1.0 if any_sampled else 0.0
+
+
 def pack_extensions(material: Material, row: np.ndarray, where: str) -> None:
     """Columns 48-63 of a material row (layout in ``bsdf_kernels``)."""
     tr = _ext(material, "KHR_materials_transmission")
@@ -123,7 +233,7 @@ def pack_extensions(material: Material, row: np.ndarray, where: str) -> None:
 
 
 def pack_material(material: Material, builder: AtlasBuilder, where: str) -> np.ndarray:
-    """One ``(64,) float32`` row of the material table."""
+    """One ``(N_COLUMNS,) float32`` row of the material table."""
     row = np.zeros(N_COLUMNS, np.float32)
     row[0] = 0  # MATERIAL_METAL_ROUGH
     bc = tuple(material.base_colour_factor)
@@ -154,11 +264,12 @@ def pack_material(material: Material, builder: AtlasBuilder, where: str) -> np.n
     _slot(row, SLOT_EMISSIVE, builder, material.emissive_texture, True)
     _slot(row, SLOT_NORMAL, builder, material.normal_texture, False)
     pack_extensions(material, row, where)
+    pack_extension_textures(material, row, builder, where)
     return row
 
 
 def pack_materials(scene: Scene) -> tuple[np.ndarray, TextureAtlas]:
-    """The ``(M, 64) float32`` material table and the texture atlas of a scene."""
+    """The ``(M, N_COLUMNS) float32`` material table and the texture atlas of a scene."""
     builder = AtlasBuilder(scene.textures, scene.source)
     materials = scene.materials or [Material(name="default")]
     rows = [
@@ -166,6 +277,21 @@ def pack_materials(scene: Scene) -> tuple[np.ndarray, TextureAtlas]:
     ]
     table = np.ascontiguousarray(np.stack(rows, axis=0), dtype=np.float32)
     return table, builder.build()
+
+
+def resolve_textured(table: np.ndarray, atlas: TextureAtlas, mat: int, uv0, uv1=None,
+                     entering: bool = True) -> np.ndarray:
+    """The resolved BSDF records ``(N, N_BSDF + 2) float64`` of material ``mat`` of a packed table with
+    its extension textures read at UV points ``uv0`` (and ``uv1``, default the same) ``(N, 2)``;
+    the last two columns are the anisotropy direction (tests; base values are the factors)."""
+    from . import bsdf_kernels, layers_kernels
+
+    uv0 = np.ascontiguousarray(uv0, dtype=np.float64).reshape(-1, 2)
+    uv1 = uv0 if uv1 is None else np.ascontiguousarray(uv1, dtype=np.float64).reshape(-1, 2)
+    out = np.zeros((uv0.shape[0], bsdf_kernels.N_BSDF + 2), np.float64)
+    layers_kernels.resolve_textured_batch(np.ascontiguousarray(table, dtype=np.float32), int(mat), atlas.pixels,
+                                          atlas.table, uv0, uv1, bool(entering), out)
+    return out
 
 
 def eval_brdf(material_row, wo, wi, base_colour=None, metallic=None, roughness=None) -> np.ndarray:

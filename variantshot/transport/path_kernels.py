@@ -48,7 +48,7 @@ from .._jit import KERNEL, PARALLEL, njit, prange
 import math
 
 from ..geometry.bvh_kernels import any_hit, closest_hit
-from .bsdf_kernels import eval_f, material_bsdf, pdf_f, sample_f
+from .bsdf_kernels import eval_f, material_bsdf_values, pdf_f, sample_f
 from .camera_kernels import generate_ray
 from .env_kernels import env_pdf, env_radiance, env_sample
 from .light_kernels import sample_emissive_point, sample_punctual, triangle_geometry
@@ -61,7 +61,7 @@ from .sampling_kernels import (
     sample_tent,
     uniform_from_state,
 )
-from .layers_kernels import anisotropy_frame, coat_emission_scale, tangent_frame, volume_attenuation
+from .layers_kernels import anisotropy_frame, coat_emission_scale, extension_values, tangent_frame, volume_attenuation
 from .texture_kernels import footprint_uv_widths, sample_slot, sample_slot_lod
 
 
@@ -112,21 +112,32 @@ def emission(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1):
 @njit(**KERNEL)
 def normal_mapped(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, tex_pixels, tex_table,
                   nx, ny, nz, u0, v0, u1, v1):
-    """Shading normal perturbed by the material's normalTexture (glTF 2.0 §3.9.3).
+    """Shading normal perturbed by the material's normalTexture (glTF 2.0 §3.9.3), see
+    :func:`normal_mapped_slot` (slot 40, scale column 14)."""
+    return normal_mapped_slot(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, tex_pixels,
+                              tex_table, nx, ny, nz, u0, v0, u1, v1, 40, 14)
 
-    Tangent space from ``layers_kernels.tangent_frame`` (TANGENT, else dp/du);
-    n = normalize(T x + B y + N z) with (x, y, z) = (2 texel - 1) x (scale, scale, 1).
-    Returns the unit normal (the unperturbed one when the material has no normal texture).
+
+@njit(**KERNEL)
+def normal_mapped_slot(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, tex_pixels, tex_table,
+                       nx, ny, nz, u0, v0, u1, v1, col, scale_col):
+    """Normal N perturbed by the tangent-space normal map in the texture slot at ``col``.
+
+    Tangent space from ``layers_kernels.tangent_frame`` (TANGENT, else dp/du, in the slot's UV
+    set); n = normalize(T x + B y + N z) with (x, y, z) = (2 texel - 1) x (scale, scale, 1),
+    scale from column ``scale_col`` (normalTexture: glTF 2.0 §3.9.3; clearcoatNormalTexture:
+    KHR_materials_clearcoat, the same normalTextureInfo).  Returns the unit normal (N itself when
+    the slot is empty).
     """
-    if int(mat_table[mat, 40]) < 0:
+    if int(mat_table[mat, col]) < 0:
         return nx, ny, nz
-    tr, tg, tb, ta = sample_slot(mat_table, mat, 40, tex_pixels, tex_table, u0, v0, u1, v1)
-    scale = float(mat_table[mat, 14])
+    tr, tg, tb, ta = sample_slot(mat_table, mat, col, tex_pixels, tex_table, u0, v0, u1, v1)
+    scale = float(mat_table[mat, scale_col])
     mx = (2.0 * tr - 1.0) * scale
     my = (2.0 * tg - 1.0) * scale
     mz = 2.0 * tb - 1.0
     ok, tx, ty, tz, bx, by, bz = tangent_frame(positions, uvs, tangents, triangles, tri, b1, b2,
-                                               int(mat_table[mat, 41]), nx, ny, nz)
+                                               int(mat_table[mat, col + 1]), nx, ny, nz)
     if not ok:
         return nx, ny, nz
     rx = tx * mx + bx * my + nx * mz
@@ -278,12 +289,18 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             snx /= sl
             sny /= sl
             snz /= sl
+            n0x = snx  # the unperturbed vertex normal (the clearcoat's, KHR_materials_clearcoat)
+            n0y = sny
+            n0z = snz
             snx, sny, snz = normal_mapped(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat,
                                           tex_pixels, tex_table, snx, sny, snz, u0, v0, u1, v1)
         else:
             snx = ngx
             sny = ngy
             snz = ngz
+            n0x = ngx
+            n0y = ngy
+            n0z = ngz
         if snx * ngx + sny * ngy + snz * ngz < 0.0:
             snx = -snx
             sny = -sny
@@ -339,12 +356,36 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         mr = sample_slot_lod(mat_table, mat, 24, tex_pixels, tex_table, u0, v0, u1, v1, fw0, fw1)
         metallic = float(mat_table[mat, 5]) * mr[2]
         roughness = float(mat_table[mat, 6]) * mr[1]
-        bsdf = material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, front)
-        if mat_table[mat, 62] > 0.0:
+        (x_tr, x_cc, x_ccr, x_shr, x_shg, x_shb, x_shro, x_sp, x_spr, x_spg, x_spb, x_an, x_dx,
+         x_dy) = extension_values(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1)
+        if x_an > 0.0:
             tx, ty, tz, bx, by, bz = anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2,
-                                                      mat_table, mat, snx, sny, snz)
+                                                      mat_table, mat, snx, sny, snz, x_dx, x_dy)
         else:
             tx, ty, tz, bx, by, bz = onb_from_normal(snx, sny, snz)
+        # the clearcoat's own normal in the local frame: clearcoatNormalTexture on the vertex
+        # normal, else the vertex normal itself (not the base's normalTexture); (0, 0, 1) when
+        # it is the shading normal anyway
+        cnx = 0.0
+        cny = 0.0
+        cnz = 1.0
+        if x_cc > 0.0 and (mat_table[mat, 40] >= 0.0 or mat_table[mat, 96] >= 0.0):
+            cwx, cwy, cwz = normal_mapped_slot(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat,
+                                               tex_pixels, tex_table, n0x, n0y, n0z, u0, v0, u1, v1, 96, 144)
+            if cwx * ngx + cwy * ngy + cwz * ngz < 0.0:
+                cwx = -cwx
+                cwy = -cwy
+                cwz = -cwz
+            if cwx * wox + cwy * woy + cwz * woz <= 0.0:
+                cwx = ngx
+                cwy = ngy
+                cwz = ngz
+            cnx = cwx * tx + cwy * ty + cwz * tz
+            cny = cwx * bx + cwy * by + cwz * bz
+            cnz = cwx * snx + cwy * sny + cwz * snz
+        bsdf = material_bsdf_values(mat_table, mat, base_r, base_g, base_b, metallic, roughness, front,
+                                    x_tr, x_cc, x_ccr, x_shr, x_shg, x_shb, x_shro, x_sp, x_spr, x_spg, x_spb,
+                                    x_an, cnx, cny, cnz)
         wlx = wox * tx + woy * ty + woz * tz
         wly = wox * bx + woy * by + woz * bz
         wlz = wox * snx + woy * sny + woz * snz

@@ -1,8 +1,9 @@
 """The texture atlas: every texture a material slot uses, decoded and packed for the kernels.
 
-A texture used by a colour slot (base colour, emissive) is decoded from sRGB to linear
-(IEC 61966-2-1, glTF 2.0 §3.9.2) *before* filtering; a data slot (metallic-roughness, normal)
-keeps the stored values.  A texture used both ways gets two atlas entries.  Each entry whose
+A texture used by a colour slot (base colour, emissive, and the KHR extensions' sheenColorTexture
+and specularColorTexture) is decoded from sRGB to linear (IEC 61966-2-1, glTF 2.0 §3.9.2) *before*
+filtering; a data slot (metallic-roughness, normal, the other extension textures) keeps the
+stored values.  A texture used both ways gets two atlas entries.  Each entry whose
 sampler allows mipmaps (glTF 2.0 §5.26 minFilter *_MIPMAP_* or undefined) gets its full chain
 of levels down to 1 x 1, each level the box-filtered (area-average) halving of the one above,
 computed in the linear values.  Layout of the arrays and the level of detail: see
@@ -105,6 +106,11 @@ class AtlasBuilder:
         self._entries: dict[tuple[int, bool], int] = {}
         self._order: list[tuple[int, bool]] = []
         self._rows = 0
+
+    @property
+    def n_textures(self) -> int:
+        """How many textures the scene has (valid indices are 0 .. n_textures - 1)."""
+        return len(self._textures)
 
     def entry(self, ref: TextureRef | None, srgb: bool) -> int:
         """Atlas entry for a material's texture reference (-1 when there is none)."""

@@ -231,13 +231,16 @@ def test_material_table_columns():
     scene = make_scene([[0, 0, 0], [1, 0, 0], [0, 1, 0]], [[0, 1, 2]], materials=[m])
     table, atlas = pack_materials(scene)
     row = table[0]
-    assert table.shape == (1, 64) and table.dtype == np.float32
+    assert table.shape == (1, 152) and table.dtype == np.float32
     np.testing.assert_allclose(row[1:5], [0.1, 0.2, 0.3, 0.4], rtol=1e-6)
     assert row[5] == 0.25 and row[6] == 0.75
     np.testing.assert_allclose(row[7:10], [4.0, 2.0, 1.0])
     assert row[10] == 1 and row[11] == pytest.approx(0.3) and row[12] == 1
     assert row[13] == pytest.approx(1.4) and row[15] == 0.5
     assert row[16] == -1 and row[24] == -1 and row[32] == -1
+    # no extension textures: every extension slot empty, clearcoat normal scale 1, no-texture flag
+    np.testing.assert_array_equal(row[64:144:8], -1)
+    assert row[144] == 1.0 and row[145] == 0.0
     rp = resolve_params(row)
     assert rp[6] == pytest.approx(((1.4 - 1) / 2.4) ** 2 * 0.5) and rp[7] == 0.5
 
