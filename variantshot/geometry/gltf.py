@@ -87,7 +87,8 @@ __all__ = [
 log = logging.getLogger(__name__)
 
 #: Extensions a file may list in ``extensionsRequired``.  KHR_materials_* objects are kept raw
-#: in :attr:`Material.extensions` for the renderer to interpret.
+#: in :attr:`Material.extensions` for the renderer to interpret; the textureInfo objects inside
+#: them are parsed and checked into :attr:`Material.extension_textures`.
 SUPPORTED_EXTENSIONS = frozenset(
     {
         "KHR_lights_punctual",

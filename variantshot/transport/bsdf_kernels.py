@@ -18,7 +18,7 @@ Layering (glTF 2.0 Appendix B and the KHR_materials_* READMEs; REFERENCES.md sec
 
     base     = (1 - m) [(1 - T) fresnel_mix(diffuse, specular) + T dielectric_bsdf] + m metal
     sheened  = sheen_brdf + (1 - max(sheenColor) E_sheen(n.wo)) base          (KHR_materials_sheen)
-    coated   = cc Fc(n.wo) coat_brdf + (1 - cc Fc(n.wo)) sheened               (KHR_materials_clearcoat)
+    coated   = cc Fc(Nc.wo) coat_brdf + (1 - cc Fc(Nc.wo)) sheened             (KHR_materials_clearcoat)
 
 * GGX D and height-correlated Smith G2 = 1 / (1 + Lambda(wo) + Lambda(wi)) (anisotropic
   form, Heitz 2014 JCGT 3(2); identical to Appendix B's V when alpha_x = alpha_y);

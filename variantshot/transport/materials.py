@@ -134,7 +134,8 @@ def _colour(ext: dict, key: str, default, where: str, name: str) -> np.ndarray:
 
 def _int(info: dict, key: str, default: int, where: str) -> int:
     value = info.get(key, default)
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != int(value) or value < 0:
+    if (isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value)
+            or value != int(value) or value < 0):
         raise RenderError(f"{where}: {key} {value!r} is not accepted (an integer >= 0)")
     return int(value)
 
@@ -166,7 +167,10 @@ def texture_ref_from_info(info, where: str, scale_key: str | None = None) -> Tex
     if scale_key is not None:
         scale = _number(info, scale_key, 1.0, where, "textureInfo", -math.inf)
     transform = None
-    tt = (info.get("extensions") or {}).get("KHR_texture_transform")
+    exts = info.get("extensions") or {}
+    if not isinstance(exts, dict):
+        raise RenderError(f"{where}: extensions {exts!r} is not accepted (an object)")
+    tt = exts.get("KHR_texture_transform")
     if tt is not None:
         tw = where + ".extensions.KHR_texture_transform"
         if not isinstance(tt, dict):
