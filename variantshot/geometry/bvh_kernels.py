@@ -486,6 +486,19 @@ else:
 
 
 @njit(**INLINE)
+def _insert_sorted(stack_ref, stack_t, first, sp, ref, tn):
+    """Insert (ref, tn) into the stack run first..sp-1, kept sorted far-to-near; returns sp + 1."""
+    j = sp
+    while j > first and _get(stack_t, j - 1) < tn:
+        _set(stack_ref, j, _get(stack_ref, j - 1))
+        _set(stack_t, j, _get(stack_t, j - 1))
+        j -= 1
+    _set(stack_ref, j, ref)
+    _set(stack_t, j, tn)
+    return sp + 1
+
+
+@njit(**INLINE)
 def closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, tmax):
     """Closest intersection of one ray with the BVH (both faces count).
 
@@ -573,18 +586,24 @@ def _closest_core(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmi
                     c = WIDTH * ref
                     first = sp
                     # push the children hit, kept sorted far-to-near, then continue with the nearest
-                    for k in range(WIDTH):
-                        if not (mask >> k) & 1:
-                            continue
-                        tn = lanes[k]
-                        j = sp
-                        while j > first and _get(stack_t, j - 1) < tn:
-                            _set(stack_ref, j, _get(stack_ref, j - 1))
-                            _set(stack_t, j, _get(stack_t, j - 1))
-                            j -= 1
-                        _set(stack_ref, j, _get(nodes_i, c + k))
-                        _set(stack_t, j, tn)
-                        sp += 1
+                    # (one block per lane with a constant index: a tuple read by a variable index
+                    # compiles to a jump table, an indirect branch per child)
+                    if mask & 1:
+                        sp = _insert_sorted(stack_ref, stack_t, first, sp, _get(nodes_i, c + 0), lanes[0])
+                    if mask & 2:
+                        sp = _insert_sorted(stack_ref, stack_t, first, sp, _get(nodes_i, c + 1), lanes[1])
+                    if mask & 4:
+                        sp = _insert_sorted(stack_ref, stack_t, first, sp, _get(nodes_i, c + 2), lanes[2])
+                    if mask & 8:
+                        sp = _insert_sorted(stack_ref, stack_t, first, sp, _get(nodes_i, c + 3), lanes[3])
+                    if mask & 16:
+                        sp = _insert_sorted(stack_ref, stack_t, first, sp, _get(nodes_i, c + 4), lanes[4])
+                    if mask & 32:
+                        sp = _insert_sorted(stack_ref, stack_t, first, sp, _get(nodes_i, c + 5), lanes[5])
+                    if mask & 64:
+                        sp = _insert_sorted(stack_ref, stack_t, first, sp, _get(nodes_i, c + 6), lanes[6])
+                    if mask & 128:
+                        sp = _insert_sorted(stack_ref, stack_t, first, sp, _get(nodes_i, c + 7), lanes[7])
                     sp -= 1
                     ref = _get(stack_ref, sp)
                     continue
