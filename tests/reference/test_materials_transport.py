@@ -154,13 +154,17 @@ def test_rougher_clearcoat_gives_a_wider_highlight():
     assert w[0] < w[1] < w[2], w
 
 
-def _anisotropic_highlight(tangent, rotation):
+def _anisotropic_highlight(tangent, rotation, texel=None):
     """(spread along image x, spread along image y) of a lamp's highlight on brushed metal."""
     from transport_scenes import disk
 
+    aniso = {"anisotropyStrength": 0.9, "anisotropyRotation": rotation}
+    textures = []
+    if texel is not None:
+        aniso["anisotropyTexture"] = {"index": 0}
+        textures = [_nearest(texel)]
     metal = Material(name="brushed", base_colour_factor=(0.9, 0.9, 0.9, 1), metallic_factor=1.0, roughness_factor=0.2,
-                     extensions={"KHR_materials_anisotropy": {"anisotropyStrength": 0.9,
-                                                              "anisotropyRotation": rotation}})
+                     extensions={"KHR_materials_anisotropy": aniso})
     lamp = Material(name="lamp", base_colour_factor=(0, 0, 0, 1), emissive_factor=(1, 1, 1), emissive_strength=50.0)
     fp, ft = quad((0, 0, 0), (3, 0, 0), (0, 3, 0))
     lp, lt = disk((1.5, 0, 3), (-1.5, 0, -3), 0.1, 32)
@@ -168,7 +172,8 @@ def _anisotropic_highlight(tangent, rotation):
     tan = np.zeros((len(pos), 4))
     tan[:, :3] = tangent
     tan[:, 3] = 1.0
-    scene = make_scene(pos, tris, normals=nrm, tangents=tan, materials=[metal, lamp], tri_material=mats)
+    scene = make_scene(pos, tris, normals=nrm, tangents=tan, materials=[metal, lamp], tri_material=mats,
+                       textures=textures)
     film = render(scene, RenderSettings(width=24, height=24, spp=16, seed=6),
                   camera=camera((-1.5, 0, 3), (0, 0, 0), yfov_rad=0.9))
     img = film.radiance[..., 0]
@@ -187,6 +192,19 @@ def test_brushed_metal_stretches_the_highlight_along_the_tangent():
     assert sx_x > 2 * sy_x and sy_y > 2 * sx_y, (sx_x, sy_x, sx_y, sy_y)
     assert sy_r > 2 * sx_r
     assert sy_r == pytest.approx(sy_y, rel=0.15) and sx_r == pytest.approx(sx_y, rel=0.3)
+
+
+def test_anisotropy_texture_turns_the_highlight():
+    # KHR_materials_anisotropy: anisotropyTexture red/green [0, 1] -> [-1, 1] is the direction
+    # in (tangent, bitangent) space; texel (0.5, 1) is the bitangent, so with the tangent along x
+    # the highlight streaks like a tangent along y; blue 1 keeps the strength.  The default
+    # texel (1, 0.5, 1) is the tangent itself (no change from the untextured material).
+    sx_t, sy_t = _anisotropic_highlight((1, 0, 0), 0.0, texel=(0.5, 1.0, 1.0, 1.0))
+    sx_y, sy_y = _anisotropic_highlight((0, 1, 0), 0.0)
+    assert sy_t > 2 * sx_t
+    assert sy_t == pytest.approx(sy_y, rel=0.15) and sx_t == pytest.approx(sx_y, rel=0.3)
+    assert _anisotropic_highlight((1, 0, 0), 0.0, texel=(1.0, 0.5, 1.0, 1.0)) == pytest.approx(
+        _anisotropic_highlight((1, 0, 0), 0.0), rel=1e-6)
 
 
 @pytest.mark.parametrize("deg", [0.0, 60.0])
