@@ -407,7 +407,11 @@ def _render_shot(task: ShotTask) -> ShotResult:
     # on white / transparent the composite uses the render only where coverage > 0: sample
     # just those pixels (and a margin for the denoiser's neighbourhood)
     sample_mask = _sample_mask(coverage) if bg in ("white", "transparent") else None
-    film = render(shot_scene, settings, env=env, camera=camera, sample_mask=sample_mask)
+    # white / transparent put their own background behind glass: paths that reach the sweep
+    # through transmissive surfaces only go to the film's see-through channel (background.py)
+    see_mat = len(product.materials) + rig.floor_material if bg in ("white", "transparent") else None
+    film = render(shot_scene, settings, env=env, camera=camera, sample_mask=sample_mask,
+                  see_through_material=see_mat, see_through_radiance=2.0 ** -task.exposure_ev)
     if bg in ("white", "transparent"):
         shadow = shadow_map(rig, camera, settings.width, settings.height, product_bvh, seed=task.quality.seed,
                             product=product)
@@ -417,8 +421,11 @@ def _render_shot(task: ShotTask) -> ShotResult:
     radiance = film.radiance
     if task.quality.denoise:
         radiance = _maybe_denoise(film, task.threads)
+    see = film.see_through
+    if see is not None and task.quality.denoise:
+        see = _denoise_see_through(film, task.threads)
     gain = 2.0 ** task.exposure_ev
-    rgb, alpha = composite(bg, radiance, coverage, gain, shadow)
+    rgb, alpha = composite(bg, radiance, coverage, gain, shadow, see)
 
     images = []
     for rel, fmt, size in image_paths(task.shot_id, task.output, task.quality.long_side_px):
@@ -493,6 +500,27 @@ def _maybe_denoise(film, threads=None):
     from ..imaging.denoise import denoise_film_if_available
 
     return denoise_film_if_available(film, threads=threads)
+
+
+def _denoise_see_through(film, threads=None, margin_px: int = 16):
+    """The film's see-through channel denoised like the beauty (same albedo and normal passes),
+    on the bounding box of the pixels that have any (plus a margin), so that the background shown
+    through glass is as smooth as the glass itself; raw where no denoiser runs."""
+    from ..imaging.denoise import denoise, is_available
+
+    see = film.see_through
+    if see is None or not is_available():
+        return see
+    rows = np.flatnonzero(np.any(see > 0.0, axis=(1, 2)))
+    cols = np.flatnonzero(np.any(see > 0.0, axis=(0, 2)))
+    if rows.size == 0:
+        return see
+    y0, y1 = max(0, rows[0] - margin_px), min(see.shape[0], rows[-1] + 1 + margin_px)
+    x0, x1 = max(0, cols[0] - margin_px), min(see.shape[1], cols[-1] + 1 + margin_px)
+    out = np.array(see, np.float64)
+    out[y0:y1, x0:x1] = denoise(see[y0:y1, x0:x1], albedo=film.albedo[y0:y1, x0:x1],
+                                normal=film.normal[y0:y1, x0:x1], threads=threads)
+    return out
 
 
 def _run_qa(task: ShotTask, primary: ImageOut, coverage, film, shadow=None) -> dict | None:

@@ -23,6 +23,29 @@ line.
 * ``transparent``: the product over a black shadow matte of opacity ``1 − s``, as straight
   (un-premultiplied) RGBA: alpha = α + (1 − α)(1 − s).
 * ``backdrop``: the render as it is, exposed.
+
+Glass (see-through)
+-------------------
+Through clear glass the camera would see the studio sweep at its rendered, unboosted level,
+while the sweep around the product is replaced by the snapped background: clear glass would
+read as a grey object.  So on ``white`` and ``transparent`` the batch renders in the path
+kernel's see-through mode: a camera path that reaches the sweep after transmissions only
+stops there; its throughput goes to the film's see-through channel ``τ`` (RGB, the mean over
+the pixel's samples, so 0 ≤ τ ≤ α), and the render adds ``τ`` × paper white in place of the
+sweep (so adaptive sampling, the denoiser and QA see the glass as it is composited; the rest
+of the render is the light the glass reflects and refracts from the rig).  With ``P`` the
+exposed product share above (which then holds ``τ`` × 1):
+
+* ``white``: ``out = P + (1 − α) s + τ (s − 1)``: the snapped background ``s`` through the glass
+  as around it (``τ s`` in all), exactly ``P + (1 − α) s`` where the background is unshadowed;
+* ``transparent`` (straight alpha; a viewer shows ``C A + (1 − A) B`` over a background ``B``):
+  ``A = 1 − s ((1 − α) + Y(τ))``, ``C = (P − τ) / A``; the pixel then shows
+  ``P − τ + s ((1 − α) + Y(τ)) B``: the shadow-matted background through the glass as well as
+  around it (Y the luminance; a tinted glass's colour cast on ``B`` cannot be expressed with
+  one alpha and is left out).
+
+``τ`` is refraction-accurate (it follows the bent paths) but the ``s`` it is multiplied by is
+the shadow value straight behind the pixel.  ``backdrop`` renders everything physically.
 """
 
 from __future__ import annotations
@@ -87,7 +110,15 @@ def _product_premultiplied(rgb, a, exposure_scale):
     return exposure_scale * prod
 
 
-def composite_white(rgb_with, coverage, exposure_scale: float, shadow) -> np.ndarray:
+def _see_through(see_through, a):
+    """τ clipped to [0, α] per channel (a denoised τ may stray past the product's edge); 0 when None."""
+    if see_through is None:
+        return None
+    t = np.nan_to_num(np.asarray(see_through, np.float64))
+    return np.clip(t, 0.0, a[..., None])
+
+
+def composite_white(rgb_with, coverage, exposure_scale: float, shadow, see_through=None) -> np.ndarray:
     """White background with the kept contact shadow.
 
     Parameters
@@ -100,6 +131,9 @@ def composite_white(rgb_with, coverage, exposure_scale: float, shadow) -> np.nda
         Linear gain applied to the product (``2 ** exposure_ev``).
     shadow : (H, W) float ndarray
         Snapped shadow ``s`` (:func:`snap_shadow`), 1 = unshadowed.
+    see_through : (H, W, 3) float ndarray, optional
+        The film's see-through channel τ of a render whose radiance holds τ × paper white
+        (module docstring): ``τ (s − 1)`` is added.
 
     Returns
     -------
@@ -111,24 +145,37 @@ def composite_white(rgb_with, coverage, exposure_scale: float, shadow) -> np.nda
     a = np.clip(np.asarray(coverage, np.float64), 0.0, 1.0)
     s = np.asarray(shadow, np.float64)
     out = _product_premultiplied(rgb, a, exposure_scale) + ((1.0 - a) * s)[..., None]
-    return np.where(a[..., None] >= 1.0, exposure_scale * rgb, out)
+    out = np.where(a[..., None] >= 1.0, exposure_scale * rgb, out)
+    tau = _see_through(see_through, a)
+    if tau is not None:
+        out = out + tau * (s[..., None] - 1.0)
+    return out
 
 
-def composite_transparent(rgb_with, coverage, exposure_scale: float, shadow):
+def composite_transparent(rgb_with, coverage, exposure_scale: float, shadow, see_through=None):
     """The product over a semi-transparent black shadow matte, straight RGBA.
+
+    ``see_through`` is the film's τ (module docstring), for a render whose radiance holds τ ×
+    paper white.
 
     Returns
     -------
     rgb_linear : (H, W, 3) float64 ndarray
         Colour (exposure applied), un-premultiplied; black where only shadow is.
     alpha : (H, W) float64 ndarray
-        α + (1 − α)(1 − s): 0 on the unshadowed background.
+        1 − s ((1 − α) + Y(τ)) (τ the see-through channel, 0 without it): α + (1 − α)(1 − s)
+        for opaque products, 0 on the unshadowed background, lower through clear glass.
     """
     rgb = np.nan_to_num(np.asarray(rgb_with, np.float64))
     a = np.clip(np.asarray(coverage, np.float64), 0.0, 1.0)
     s = np.asarray(shadow, np.float64)
     premult = _product_premultiplied(rgb, a, exposure_scale)
     alpha = a + (1.0 - a) * (1.0 - s)
+    tau = _see_through(see_through, a)
+    if tau is not None:
+        premult = np.maximum(premult - tau, 0.0)  # the render's paper white behind the glass
+        y = np.clip(tau @ np.array([0.2126, 0.7152, 0.0722]), 0.0, a)  # IEC 61966-2-1 luminance row
+        alpha = np.clip(alpha - s * y, 0.0, 1.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         colour = np.where(alpha[..., None] > 0, premult / np.maximum(alpha, 1e-300)[..., None], 0.0)
     return colour, alpha
@@ -139,12 +186,14 @@ def composite_backdrop(rgb_with, exposure_scale: float) -> np.ndarray:
     return exposure_scale * np.nan_to_num(np.asarray(rgb_with, np.float64))
 
 
-def composite(background: str, rgb_with, coverage, exposure_scale: float, shadow=None):
-    """Dispatch on the background name; returns ``(rgb_linear, alpha or None)``."""
+def composite(background: str, rgb_with, coverage, exposure_scale: float, shadow=None, see_through=None):
+    """Dispatch on the background name; returns ``(rgb_linear, alpha or None)``.
+
+    ``see_through`` (the film's τ, white and transparent only) puts the background behind glass."""
     if background == "white":
-        return composite_white(rgb_with, coverage, exposure_scale, shadow), None
+        return composite_white(rgb_with, coverage, exposure_scale, shadow, see_through), None
     if background == "transparent":
-        return composite_transparent(rgb_with, coverage, exposure_scale, shadow)
+        return composite_transparent(rgb_with, coverage, exposure_scale, shadow, see_through)
     if background == "backdrop":
         return composite_backdrop(rgb_with, exposure_scale), None
     raise ValueError(f"unknown background {background!r} (white, transparent, backdrop)")

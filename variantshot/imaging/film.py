@@ -30,6 +30,8 @@ class FilmSums:
         Samples per pixel added so far (the largest count when pixels differ).
     n_pixel : (H, W) float64 or None
         Samples added to each pixel, when they differ (adaptive sampling); None: ``n`` everywhere.
+    see : (H, W, 3)
+        Sum of the see-through throughput (``path_kernels`` see-through mode; 0 otherwise).
     """
 
     rgb: np.ndarray
@@ -41,12 +43,13 @@ class FilmSums:
     depth_n: np.ndarray
     n: int = 0
     n_pixel: np.ndarray | None = None
+    see: np.ndarray | None = None
 
     @classmethod
     def zeros(cls, width: int, height: int) -> "FilmSums":
         z3 = lambda: np.zeros((height, width, 3), np.float64)  # noqa: E731
         z1 = lambda: np.zeros((height, width), np.float64)  # noqa: E731
-        return cls(z3(), z3(), z3(), z3(), z1(), z1(), z1(), 0)
+        return cls(z3(), z3(), z3(), z3(), z1(), z1(), z1(), 0, see=z3())
 
 
 @dataclass
@@ -73,6 +76,11 @@ class Film:
     spp_map : (H, W) int32 ndarray or None
         Samples taken by each pixel when the render was adaptive (``RenderSettings.noise_target``);
         None for a fixed-spp render (every pixel has ``spp``).
+    see_through : (H, W, 3) float64 ndarray or None
+        Mean throughput of the camera paths that reached the studio floor through transmissive
+        surfaces only (``render(..., see_through_material=)``): how much of the background
+        behind the pixel shows through the product.  None when nothing was seen through (or the
+        render did not ask for it).
     """
 
     radiance: np.ndarray
@@ -83,6 +91,7 @@ class Film:
     variance: np.ndarray
     spp: int
     spp_map: np.ndarray | None = None
+    see_through: np.ndarray | None = None
 
     @property
     def mean_spp(self) -> float:
@@ -117,8 +126,12 @@ def resolve_film(sums: FilmSums) -> Film:
         n_pixel, sums.rgb, sums.rgb_sq, sums.albedo, sums.normal, sums.alpha, sums.depth, sums.depth_n,
         radiance, variance, albedo, normal, alpha, depth,
     )
+    see_through = None
+    if sums.see is not None and np.any(sums.see != 0.0):
+        see_through = sums.see / np.maximum(n_pixel, 1.0)[..., None]
     return Film(radiance=radiance, albedo=albedo, normal=normal, alpha=alpha, depth=depth, variance=variance,
-                spp=int(sums.n), spp_map=None if sums.n_pixel is None else sums.n_pixel.astype(np.int32))
+                spp=int(sums.n), spp_map=None if sums.n_pixel is None else sums.n_pixel.astype(np.int32),
+                see_through=see_through)
 
 
 def tile_relative_error(sums: FilmSums, tile_px: int, floor: float) -> np.ndarray:

@@ -126,6 +126,8 @@ def render(
     progress=None,
     bvh=None,
     sample_mask=None,
+    see_through_material: int | None = None,
+    see_through_radiance: float = 0.0,
 ) -> Film:
     """Render ``scene`` by path tracing.
 
@@ -149,6 +151,14 @@ def render(
         Pixels to sample; the others take no samples at all (black radiance, zero albedo and
         alpha, infinite variance and depth, ``spp_map`` 0).  The batch passes the product's
         coverage, dilated, when the background replaces everything else.
+    see_through_material : int, optional
+        Index (in ``scene.materials``) of the studio floor: camera paths that reach it through
+        transmissions only stop there and add their throughput to ``film.see_through`` instead
+        of shading it (``path_kernels`` see-through mode; the batch sets it on the white and
+        transparent backgrounds, whose compositor puts its own background behind the glass).
+    see_through_radiance : float
+        Radiance such a path adds to the film (the scene-linear value of paper white,
+        2^-exposure, so the pixel renders as the white background seen through the glass).
 
     Returns
     -------
@@ -201,7 +211,7 @@ def render(
     triangles = np.ascontiguousarray(scene.triangles, dtype=np.int32)
     tri_material = np.ascontiguousarray(scene.tri_material, dtype=np.int32)
     cone_spread, cone_base = ray_cone(cam, settings.spp)
-    fopts = np.array([eps, FILTER_RADIUS_PX, cone_spread, cone_base], np.float64)
+    fopts = np.array([eps, FILTER_RADIUS_PX, cone_spread, cone_base, float(see_through_radiance)], np.float64)
     total = settings.spp
     adaptive = settings.noise_target is not None and total > settings.adaptive_min_spp
     if sample_mask is None:
@@ -227,7 +237,8 @@ def render(
             end = min(total, done + max(2, min(settings.wave_spp, done // 4)))
         opts = np.array(
             [width, height, done, end, settings.seed, settings.max_depth,
-             1 if settings.mode == "baseline" else 0, 1 if has_env else 0, 1 if has_alpha else 0],
+             1 if settings.mode == "baseline" else 0, 1 if has_env else 0, 1 if has_alpha else 0,
+             -1 if see_through_material is None else int(see_through_material)],
             np.int64,
         )
         path_kernels.render_rows(
@@ -237,7 +248,7 @@ def render(
             lights.punctual, lights.emit_tris, lights.emit_cdf, lights.tri_emit_prob, lights.sel_cdf,
             env_pixels, env_rows, env_cols, env_params,
             cam, opts, fopts,
-            sums.rgb, sums.rgb_sq, sums.albedo, sums.normal, sums.alpha, sums.depth, sums.depth_n,
+            sums.rgb, sums.rgb_sq, sums.albedo, sums.normal, sums.alpha, sums.depth, sums.depth_n, sums.see,
             rows, active,
         )
         if per_pixel:

@@ -34,10 +34,19 @@ light point and the BSDF direction come from Sobol' pairs 2 and 3 instead of +2.
 
 Packed integer options ``opts`` (int64): 0 width, 1 height, 2 first sample, 3 end sample,
 4 seed, 5 max depth, 6 mode (0 full, 1 baseline), 7 has environment, 8 has non-opaque
-materials.  Float options ``fopts`` (float64): 0 ray offset eps, 1 filter radius (pixels),
+materials, 9 see-through material (-1: off).  Float options ``fopts`` (float64): 0 ray offset eps, 1 filter radius (pixels),
 2 ray-cone spread (radians per unit length travelled), 3 ray-cone base width (world units;
-orthographic cameras); base colour and metallic-roughness lookups on the path's surfaces are
+orthographic cameras), 4 see-through background radiance; base colour and metallic-roughness lookups on the path's surfaces are
 filtered for the cone's footprint (``texture_kernels``), the other slots read level 0.
+
+See-through mode (``opts[9]`` = the studio floor's material, set by the batch for the white and
+transparent backgrounds): a camera path that reaches that material after only BSDF
+transmissions (at least one) and alpha pass-throughs is not shaded there; it ends, adds its
+throughput x ``fopts[4]`` (the scene-linear value the exposure maps to paper white) to the
+radiance -- the white background seen through the glass, so that adaptive sampling, the
+denoiser and QA see the pixel as it will be composited -- and returns the throughput as the
+"see-through" RGB, with which the compositor puts its own background value there instead
+(``imaging.background``).  Paths that reflected off anything shade the floor as usual.
 """
 
 from __future__ import annotations
@@ -196,13 +205,15 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                  cam, opts, fopts, px_x, px_y, sample_index, state):
     """One camera sample (number ``sample_index``) through pixel (px_x, px_y).
 
-    Returns (r, g, b, albedo r, g, b, normal x, y, z, coverage, depth) where depth is -1 when
-    the camera ray reached no surface.
+    Returns (r, g, b, albedo r, g, b, normal x, y, z, coverage, depth, see-through r, g, b)
+    where depth is -1 when the camera ray reached no surface and see-through is the throughput
+    of a path that reached the ``opts[9]`` material through transmissions only (0 otherwise).
     """
     max_depth = opts[5]
     baseline = opts[6] == 1
     has_env = opts[7] == 1
     has_alpha = opts[8]
+    see_mat = opts[9]
     eps = fopts[0]
     radius = fopts[1]
     cone_spread = fopts[2]  # ray cone (texture_kernels): width = base + spread x distance
@@ -239,6 +250,11 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
     prev_transmit = False  # the last BSDF sample refracted: NEE cannot make it, no MIS
     depth = 0
     passes = 0
+    n_transmit = 0  # BSDF transmissions so far
+    clear = True  # no reflection yet: only transmissions and alpha pass-throughs
+    see_r = 0.0
+    see_g = 0.0
+    see_b = 0.0
     while True:
         t, tri, b1, b2 = closest_hit(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, 0.0, math.inf)
         if tri < 0:
@@ -282,6 +298,15 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                 oy = py - ngy * eps
                 oz = pz - ngz * eps
                 continue
+        if mat == see_mat and clear and n_transmit > 0:
+            # the floor seen through the product: left to the compositor (see-through mode)
+            see_r = beta_r
+            see_g = beta_g
+            see_b = beta_b
+            lr += beta_r * fopts[4]
+            lg += beta_g * fopts[4]
+            lb += beta_b * fopts[4]
+            break
         double_sided = mat_table[mat, 12] > 0.5
         # shading normal on the viewer's side of the geometric normal
         sl = math.sqrt(snx * snx + sny * sny + snz * snz)
@@ -520,6 +545,10 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                 beta_b /= q
         prev_transmit = transmit
         if transmit:
+            n_transmit += 1
+        else:
+            clear = False
+        if transmit:
             ox = px - ngx * eps
             oy = py - ngy * eps
             oz = pz - ngz * eps
@@ -536,7 +565,11 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         lr = 0.0
         lg = 0.0
         lb = 0.0
-    return lr, lg, lb, alb_r, alb_g, alb_b, nrm_x, nrm_y, nrm_z, coverage, depth_out
+    if not (math.isfinite(see_r) and math.isfinite(see_g) and math.isfinite(see_b)):
+        see_r = 0.0
+        see_g = 0.0
+        see_b = 0.0
+    return lr, lg, lb, alb_r, alb_g, alb_b, nrm_x, nrm_y, nrm_z, coverage, depth_out, see_r, see_g, see_b
 
 
 @njit(**PARALLEL)
@@ -546,7 +579,7 @@ def render_rows(positions, normals, uvs, tangents, colours, triangles, tri_mater
                 punctual, emit_tris, emit_cdf, tri_emit_prob, sel_cdf,
                 env_pixels, env_cdf_rows, env_cdf_cols, env_params,
                 cam, opts, fopts,
-                sum_rgb, sum_sq, sum_albedo, sum_normal, sum_alpha, sum_depth, n_depth,
+                sum_rgb, sum_sq, sum_albedo, sum_normal, sum_alpha, sum_depth, n_depth, sum_see,
                 rows, active):
     """Add samples ``opts[2] .. opts[3]-1`` of the active pixels to the film sums.
 
@@ -590,3 +623,6 @@ def render_rows(positions, normals, uvs, tangents, colours, triangles, tri_mater
                 if r[10] >= 0.0:
                     sum_depth[y, x] += r[10]
                     n_depth[y, x] += 1.0
+                sum_see[y, x, 0] += r[11]
+                sum_see[y, x, 1] += r[12]
+                sum_see[y, x, 2] += r[13]
