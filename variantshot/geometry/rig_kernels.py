@@ -33,7 +33,8 @@ def crossing_transmittance(mat_table, mat, tex_pixels, tex_table, attrs, cos_i):
 
     ``(1 - a) + a T_s`` with ``a`` the glTF coverage (MASK: 0 below the cutoff, else 1; BLEND:
     alpha; OPAQUE: 1) and ``T_s`` the straight-through transmission of the layered BSDF:
-    ``(1 - metallic) transmission (1 - F(cos_i, ior)) (1 - clearcoat F(cos_i, 1.5)) Y(base)``,
+    ``(1 - metallic) transmission (1 - F(cos_i, ior)) (1 - clearcoat F(cos_i, 1.5)) Y(base)``
+    (factors times their textures),
     F the exact unpolarised Fresnel reflectance, Y the luminance of the base colour (which tints
     the refracted light).  Refraction (the bent direction, caustics) and roughness are ignored:
     the ray goes straight on.  ``attrs`` is ``path_kernels.surface_attributes``' tuple.
@@ -53,6 +54,8 @@ def crossing_transmittance(mat_table, mat, tex_pixels, tex_table, attrs, cos_i):
     tr = float(mat_table[mat, 48])
     ts = 0.0
     if tr > 0.0 and a > 0.0:
+        # transmissionTexture R and clearcoatTexture R scale their factors (slots 64, 80)
+        tr *= sample_slot(mat_table, mat, 64, tex_pixels, tex_table, u0, v0, u1, v1)[0]
         mr = sample_slot(mat_table, mat, 24, tex_pixels, tex_table, u0, v0, u1, v1)
         metallic = min(max(float(mat_table[mat, 5]) * mr[2], 0.0), 1.0)
         bt = sample_slot(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1)
@@ -61,7 +64,10 @@ def crossing_transmittance(mat_table, mat, tex_pixels, tex_table, attrs, cos_i):
              + 0.0722 * float(mat_table[mat, 3]) * bt[2] * attrs[12])
         ior = float(mat_table[mat, 13])
         f = fresnel_dielectric(cos_i, ior) if abs(ior - 1.0) > 1e-6 else 0.0
-        fc = float(mat_table[mat, 53]) * fresnel_dielectric(cos_i, 1.5)
+        cc = float(mat_table[mat, 53])
+        if cc > 0.0:
+            cc *= sample_slot(mat_table, mat, 80, tex_pixels, tex_table, u0, v0, u1, v1)[0]
+        fc = cc * fresnel_dielectric(cos_i, 1.5)
         ts = (1.0 - metallic) * min(tr, 1.0) * (1.0 - f) * (1.0 - fc) * max(y, 0.0)
     return (1.0 - a) + a * ts
 
