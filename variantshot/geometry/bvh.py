@@ -14,9 +14,11 @@ from typing import NamedTuple
 
 import numpy as np
 
-# Split parameters of the binned SAH build (see bvh_kernels.build_binary).  A leaf of up to 4
-# triangles is one vector test (a pack); the leaf encoding allows at most 7.
-MAX_LEAF = 4
+# Split parameters of the binned SAH build (see bvh_kernels.build_binary).  A leaf holds up to 7
+# triangles (the leaf encoding's limit) in 1 or 2 packs of 4, each one vector test; the SAH
+# counts triangles in whole packs, so leaves come out mostly full (measured: 96 % of the pack
+# lanes used against 80 % with 4-triangle leaves, 12 fewer BVH bytes per triangle).
+MAX_LEAF = 7
 N_BINS = 32
 TRAVERSAL_COST = 3.0  # one 8-wide node visit, in triangle tests (measured best of 0.5..5)
 

@@ -14,9 +14,8 @@ The tree is WIDTH-wide (WIDTH = 8).  Node 0 is the root and is always an inner n
     max = -inf, so no ray ever enters it.
 ``nodes_i`` : (WIDTH n_nodes,) int32
     Child references of node ``n`` at ``8 n``.  ``ref >= 0`` is an inner node index.  ``ref < 0``
-    is a leaf: with ``v = ~ref`` (= -ref - 1) it holds ``v & 7`` triangles (1 to 7; the build
-    makes at most 4) in the ``ceil((v & 7) / 4)`` packs starting at pack ``v >> 3``.  Empty slots
-    hold -1.
+    is a leaf: with ``v = ~ref`` (= -ref - 1) it holds ``v & 7`` triangles (1 to 7) in the
+    ``ceil((v & 7) / 4)`` packs starting at pack ``v >> 3``.  Empty slots hold -1.
 ``tris_f`` : (36 n_packs,) float32
     Triangles in packs of 4, structure-of-arrays: pack ``p``, vertex ``j``, axis ``q``, lane ``k``
     at ``36 p + 4 (3 j + q) + k``, in each triangle's original vertex order (so barycentrics
@@ -937,7 +936,9 @@ def build_binary(tri_lo, tri_hi, centroid, max_leaf, n_bins, trav_cost):
                     ln += bin_n[a, b - 1]
                     if ln == 0 or right_n[b] == 0:
                         continue
-                    cost = _half_area(lx0, ly0, lz0, lx1, ly1, lz1) * ln + right_area[b] * right_n[b]
+                    # triangles counted in whole packs of 4: a leaf is tested 4 at a time
+                    cost = (_half_area(lx0, ly0, lz0, lx1, ly1, lz1) * (4 * ((ln + 3) // 4))
+                            + right_area[b] * (4 * ((right_n[b] + 3) // 4)))
                     if cost < best_cost:
                         best_cost = cost
                         best_axis = a
@@ -947,7 +948,7 @@ def build_binary(tri_lo, tri_hi, centroid, max_leaf, n_bins, trav_cost):
             split_cost = trav_cost + (best_cost / node_area if node_area > 0.0 else n)
         else:
             split_cost = np.inf
-        if n <= max_leaf and n <= split_cost:
+        if n <= max_leaf and 4 * ((n + 3) // 4) <= split_cost:
             left[node] = -1
             start[node] = s
             count[node] = n

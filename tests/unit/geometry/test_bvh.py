@@ -327,3 +327,75 @@ def test_input_checks():
     assert b.tris_f.dtype == np.float32 and b.tri_ids.dtype == np.int32
     with pytest.raises(ValueError):
         intersect(b, np.zeros((3, 3), np.float32), np.zeros((4, 3), np.float32))
+
+
+def _walk_layout(b, pos, tris):
+    """Walk the BVH arrays by the layout of the bvh_kernels docstring; check its invariants."""
+    from variantshot.geometry.bvh_kernels import WIDTH
+
+    nodes_f = b.nodes_f.reshape(-1, 6, WIDTH)  # [min_x, max_x, min_y, max_y, min_z, max_z] x lanes
+    nodes_i = b.nodes_i.reshape(-1, WIDTH)
+    packs = b.tris_f.reshape(-1, 3, 3, 4)  # pack, vertex, axis, lane
+    ids = b.tri_ids.reshape(-1, 4)
+    seen_nodes = np.zeros(len(nodes_i), np.int64)
+    seen_tris = np.zeros(len(tris), np.int64)
+    leaf_sizes = []
+    stack = [0]
+    while stack:
+        n = stack.pop()
+        seen_nodes[n] += 1
+        for k in range(WIDTH):
+            ref = int(nodes_i[n, k])
+            if ref == -1:
+                continue
+            lo, hi = nodes_f[n, 0::2, k], nodes_f[n, 1::2, k]
+            if ref >= 0:
+                stack.append(ref)
+                below = []
+                sub = [ref]
+                while sub:  # every triangle under the child lies inside the child's box
+                    m = sub.pop()
+                    for r in nodes_i[m]:
+                        r = int(r)
+                        if r >= 0:
+                            sub.append(r)
+                        elif r != -1:
+                            v = ~r
+                            for p in range((v >> 3), (v >> 3) + ((v & 7) + 3) // 4):
+                                below.extend(ids[p])
+                corners = pos[tris[np.unique(below)]].reshape(-1, 3)
+            else:
+                v = ~ref
+                first, count = v >> 3, v & 7
+                assert 1 <= count <= 7
+                leaf_sizes.append(count)
+                lanes = np.concatenate([ids[p] for p in range(first, first + (count + 3) // 4)])
+                # the count first lanes are the leaf's triangles; spare lanes repeat the last one
+                assert (lanes[count:] == lanes[count - 1]).all()
+                seen_tris[lanes[:count]] += 1
+                for p in range(first, first + (count + 3) // 4):
+                    for lane in range(4):  # the pack holds the triangle's vertices in order
+                        np.testing.assert_array_equal(packs[p, :, :, lane], pos[tris[ids[p, lane]]])
+                corners = pos[tris[lanes[:count]]].reshape(-1, 3)
+            assert (corners >= lo).all() and (corners <= hi).all(), (n, k)
+    return seen_nodes, seen_tris, np.array(leaf_sizes)
+
+
+@pytest.mark.parametrize("kind", ["icosphere", "soup"])
+def test_layout_invariants(kind):
+    # The layout documented in bvh_kernels (a fact of this module, no outside source): every node
+    # is reached once from the root, every triangle sits in exactly one leaf, leaves hold 1..7
+    # triangles, and every child box contains the triangles below it.
+    if kind == "icosphere":
+        pos, tris = _icosphere(4)
+    else:
+        rng = np.random.default_rng(11)
+        pos = rng.normal(size=(3000, 3)).astype(np.float32)
+        tris = rng.integers(0, 3000, (2000, 3)).astype(np.int32)
+    b = build_bvh(pos, tris)
+    seen_nodes, seen_tris, sizes = _walk_layout(b, pos, tris)
+    assert (seen_nodes == 1).all()
+    assert (seen_tris == 1).all()
+    # the leaves come out mostly as full packs (the SAH counts whole packs): more than 85 % of
+    # the pack lanes hold a distinct triangle (measured 96 %; 80 % with 4-triangle leaves)
+    assert len(tris) / len(b.tri_ids) > 0.85, len(tris) / len(b.tri_ids)
