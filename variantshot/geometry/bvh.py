@@ -79,7 +79,7 @@ def _float_array(name: str, value, shape_tail: tuple[int, ...]) -> np.ndarray:
 
 
 def build_bvh(positions, triangles) -> BVH:
-    """Build an 8-wide BVH: binned surface-area-heuristic binary tree, collapsed to 8 children.
+    """Build an 8-wide BVH: binned surface-area-heuristic binary tree, collapsed to 8-wide nodes.
 
     Parameters
     ----------
@@ -103,7 +103,8 @@ def build_bvh(positions, triangles) -> BVH:
     References
     ----------
     Wald (2007), "On fast construction of SAH-based bounding volume hierarchies" (binning);
-    MacDonald & Booth (1990) (the surface area heuristic).
+    MacDonald & Booth (1990) (the surface area heuristic); Ylitie, Karras & Laine (2017) (the
+    SAH-optimal collapse to wide nodes, ``bvh_kernels.plan_wide``).
     """
     from . import bvh_kernels as bk
 
@@ -134,7 +135,11 @@ def build_bvh(positions, triangles) -> BVH:
     order, lo, hi, left, start, count = bk.build_binary(
         tri_lo, tri_hi, centroid, MAX_LEAF, N_BINS, TRAVERSAL_COST
     )
-    nodes_f, nodes_i, pack_start, pack_count = bk.collapse_wide(lo, hi, left, start, count)
+    # which binary nodes become wide nodes, leaves or slots: SAH-optimal over the binary tree
+    p_left, p_start, p_count, split, wide_split = bk.plan_wide(lo, hi, left, start, count,
+                                                               TRAVERSAL_COST, MAX_LEAF)
+    nodes_f, nodes_i, pack_start, pack_count = bk.collapse_wide(lo, hi, left, p_left, p_start, p_count,
+                                                                split, wide_split)
     tris_f, tri_ids = bk.gather_triangles(pos, tris, order, pack_start, pack_count)
     if tris.shape[0]:
         bounds = np.stack([tri_lo.min(axis=0), tri_hi.max(axis=0)]).astype(np.float32)

@@ -993,11 +993,117 @@ def build_binary(tri_lo, tri_hi, centroid, max_leaf, n_bins, trav_cost):
 
 
 @njit(**KERNEL)
-def collapse_wide(lo, hi, left, start, count):
-    """Collapse a binary BVH into WIDTH-wide nodes (``nodes_f``, ``nodes_i`` of the module layout).
+def gather_triangles(positions, triangles, order, pack_start, pack_count):
+    """4-triangle packs ``tris_f`` (36 P,) float32 and their ``tri_ids`` (4 P,) int32.
 
-    Each wide node takes a binary node's two children and repeatedly opens the inner child with
-    the largest surface area until it has WIDTH children or only leaves.
+    Pack p lane k holds triangle ``order[pack_start[p] + k]``; lanes past ``pack_count[p]``
+    repeat the pack's last triangle (same vertices and id, so they can never win a hit).
+    """
+    n = pack_start.shape[0]
+    out = np.empty(36 * n, np.float32)
+    ids = np.empty(4 * n, np.int32)
+    for p in range(n):
+        for k in range(4):
+            t = order[pack_start[p] + min(k, pack_count[p] - 1)]
+            ids[4 * p + k] = t
+            for j in range(3):
+                v = triangles[t, j]
+                for q in range(3):
+                    out[36 * p + 4 * (3 * j + q) + k] = positions[v, q]
+    return out, ids
+
+
+@njit(**KERNEL)
+def plan_wide(lo, hi, left, start, count, trav_cost, max_leaf):
+    """Choose the wide tree by dynamic programming over the binary tree (SAH-optimal cut).
+
+    ``d[n, j]`` is the least SAH cost of the binary subtree of ``n`` spread over at most j + 1
+    child slots of a wide node; a slot is either a leaf (at most ``max_leaf`` triangles, cost
+    its area times its triangles rounded up to whole packs of 4) or a wide node (cost its area
+    times ``trav_cost`` plus its own best WIDTH-slot split).
+
+    Returns (left, start, count, split, wide_split): the binary tree with the subtrees chosen as
+    leaves turned into leaves; ``split[n, j]``, how many slots (1..j) the left child gets when n
+    is spread over j + 1 slots (0: n fills one slot itself); ``wide_split[n]``, the left child's
+    slots when n is a wide node.  O(WIDTH^2) per binary node.
+
+    Measured against opening the largest child greedily: 6.1 instead of 3.7 children per node,
+    half the nodes, +9 % closest hit and +14 % any hit on incoherent rays (knot), +4 % on the
+    product scene.
+
+    References
+    ----------
+    Ylitie, Karras & Laine (2017), "Efficient incoherent ray traversal on GPUs through
+    compressed wide BVHs", HPG (the dynamic programme over the binary tree).
+    """
+    m = left.shape[0]
+    W = WIDTH
+    d = np.full((m, W), np.inf)
+    one_is_leaf = np.zeros(m, np.bool_)
+    split = np.zeros((m, W), np.int64)
+    sub_n = np.zeros(m, np.int64)
+    sub_s = np.zeros(m, np.int64)
+    wide_split = np.ones(m, np.int64)
+    # children have larger indices than their parent (left = n_nodes at split time)
+    for n in range(m - 1, -1, -1):
+        area = _half_area(lo[n, 0], lo[n, 1], lo[n, 2], hi[n, 0], hi[n, 1], hi[n, 2])
+        if left[n] < 0:
+            sub_n[n] = count[n]
+            sub_s[n] = start[n]
+            leaf = area * (4 * ((count[n] + 3) // 4))
+            for j in range(W):
+                d[n, j] = leaf
+            one_is_leaf[n] = True
+            continue
+        a = left[n]
+        b = a + 1
+        sub_n[n] = sub_n[a] + sub_n[b]
+        sub_s[n] = min(sub_s[a], sub_s[b])
+        # n as a wide node: its two children over WIDTH slots
+        best = np.inf
+        for k in range(1, W):
+            c = d[a, k - 1] + d[b, W - k - 1]
+            if c < best:
+                best = c
+                wide_split[n] = k
+        wide = area * trav_cost + best
+        single = wide
+        if sub_n[n] <= max_leaf:
+            leaf = area * (4 * ((sub_n[n] + 3) // 4))
+            if leaf <= wide:
+                single = leaf
+                one_is_leaf[n] = True
+        d[n, 0] = single
+        for j in range(1, W):  # n spread over j + 1 slots
+            best = single
+            arg = 0
+            for k in range(1, j + 1):
+                c = d[a, k - 1] + d[b, j - k]
+                if c < best:
+                    best = c
+                    arg = k
+            d[n, j] = best
+            split[n, j] = arg
+    out_left = left.copy()
+    out_start = start.copy()
+    out_count = count.copy()
+    for n in range(m):
+        if left[n] >= 0 and one_is_leaf[n]:
+            out_left[n] = -1
+            out_start[n] = sub_s[n]
+            out_count[n] = sub_n[n]
+    return out_left, out_start, out_count, split, wide_split
+
+
+@njit(**KERNEL)
+def collapse_wide(lo, hi, tree_left, left, start, count, split, wide_split):
+    """Write the WIDTH-wide tree chosen by :func:`plan_wide` (``nodes_f``, ``nodes_i`` of the
+    module layout).
+
+    ``tree_left`` is the binary tree's left-child array; ``left``, ``start``, ``count`` are the
+    planned ones (subtrees chosen as leaves are leaves).  A wide node at binary node b takes b's
+    two children over ``wide_split[b]`` and WIDTH - ``wide_split[b]`` slots, and each (node,
+    slots) pair splits further as ``split`` says until it fills one slot.
 
     Returns
     -------
@@ -1016,45 +1122,51 @@ def collapse_wide(lo, hi, left, start, count):
     if m == 0:
         empty = np.zeros(0, np.int64)
         return nodes_f[:row].copy(), nodes_i[:WIDTH].copy(), empty, empty
-    queue = np.empty(cap, np.int64)  # binary node of each wide node
+    queue = np.empty(cap, np.int64)
     queue[0] = 0
     n_wide = 1
     n_leaf_tris = 0
     for c in range(m):
         if left[c] < 0:
             n_leaf_tris += count[c]
-    pack_start = np.empty(n_leaf_tris + 1, np.int64)  # leaf-order start of each 4-triangle pack
+    pack_start = np.empty(n_leaf_tris + 1, np.int64)
     pack_count = np.empty(n_leaf_tris + 1, np.int64)
     n_packs = 0
     head = 0
     kids = np.empty(WIDTH, np.int64)
+    todo_n = np.empty(2 * WIDTH, np.int64)
+    todo_j = np.empty(2 * WIDTH, np.int64)
     while head < n_wide:
         b = queue[head]
         w = head
         head += 1
+        nk = 0
         if left[b] < 0:
             kids[0] = b
             nk = 1
         else:
-            kids[0] = left[b]
-            kids[1] = left[b] + 1
-            nk = 2
-        while nk < WIDTH:
-            best = -1
-            best_area = -1.0
-            for k in range(nk):
-                c = kids[k]
-                if left[c] >= 0:
-                    area = _half_area(lo[c, 0], lo[c, 1], lo[c, 2], hi[c, 0], hi[c, 1], hi[c, 2])
-                    if area > best_area:
-                        best_area = area
-                        best = k
-            if best < 0:
-                break
-            c = kids[best]
-            kids[best] = left[c]
-            kids[nk] = left[c] + 1
-            nk += 1
+            # b's two children over WIDTH slots as planned; a (node, slots - 1) pair either
+            # fills one slot or splits between its children again
+            kl = wide_split[b]
+            todo_n[0] = tree_left[b]
+            todo_j[0] = kl - 1
+            todo_n[1] = tree_left[b] + 1
+            todo_j[1] = WIDTH - kl - 1
+            ts = 2
+            while ts > 0:
+                ts -= 1
+                n = todo_n[ts]
+                j = todo_j[ts]
+                if tree_left[n] < 0 or j == 0 or split[n, j] == 0:
+                    kids[nk] = n
+                    nk += 1
+                else:
+                    k = split[n, j]
+                    todo_n[ts] = tree_left[n]
+                    todo_j[ts] = k - 1
+                    todo_n[ts + 1] = tree_left[n] + 1
+                    todo_j[ts + 1] = j - k
+                    ts += 2
         for k in range(nk):
             c = kids[k]
             for q in range(3):
@@ -1078,24 +1190,3 @@ def collapse_wide(lo, hi, left, start, count):
                 n_wide += 1
     return (nodes_f[: row * n_wide].copy(), nodes_i[: WIDTH * n_wide].copy(),
             pack_start[:n_packs].copy(), pack_count[:n_packs].copy())
-
-
-@njit(**KERNEL)
-def gather_triangles(positions, triangles, order, pack_start, pack_count):
-    """4-triangle packs ``tris_f`` (36 P,) float32 and their ``tri_ids`` (4 P,) int32.
-
-    Pack p lane k holds triangle ``order[pack_start[p] + k]``; lanes past ``pack_count[p]``
-    repeat the pack's last triangle (same vertices and id, so they can never win a hit).
-    """
-    n = pack_start.shape[0]
-    out = np.empty(36 * n, np.float32)
-    ids = np.empty(4 * n, np.int32)
-    for p in range(n):
-        for k in range(4):
-            t = order[pack_start[p] + min(k, pack_count[p] - 1)]
-            ids[4 * p + k] = t
-            for j in range(3):
-                v = triangles[t, j]
-                for q in range(3):
-                    out[36 * p + 4 * (3 * j + q) + k] = positions[v, q]
-    return out, ids

@@ -399,3 +399,7 @@ def test_layout_invariants(kind):
     # the leaves come out mostly as full packs (the SAH counts whole packs): more than 85 % of
     # the pack lanes hold a distinct triangle (measured 96 %; 80 % with 4-triangle leaves)
     assert len(tris) / len(b.tri_ids) > 0.85, len(tris) / len(b.tri_ids)
+    # the wide nodes are chosen by SAH over the whole binary tree, not by opening the largest
+    # child first: nodes come out well filled (measured 5.9 / 6.7 of 8 here; 3.7 greedily)
+    fill = float(np.mean(b.nodes_i != -1) * 8)
+    assert fill > 5.0, fill
