@@ -1038,9 +1038,10 @@ def plan_wide(lo, hi, left, start, count, trav_cost, max_leaf):
     """
     m = left.shape[0]
     W = WIDTH
-    d = np.full((m, W), np.inf)
+    # float32 costs and int8 splits: the tables are the build's largest arrays (m x WIDTH)
+    d = np.full((m, W), np.inf, np.float32)
     one_is_leaf = np.zeros(m, np.bool_)
-    split = np.zeros((m, W), np.int64)
+    split = np.zeros((m, W), np.int8)
     sub_n = np.zeros(m, np.int64)
     sub_s = np.zeros(m, np.int64)
     wide_split = np.ones(m, np.int64)
