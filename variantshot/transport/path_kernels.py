@@ -34,10 +34,11 @@ light point and the BSDF direction come from Sobol' pairs 2 and 3 instead of +2.
 
 Packed integer options ``opts`` (int64): 0 width, 1 height, 2 first sample, 3 end sample,
 4 seed, 5 max depth, 6 mode (0 full, 1 baseline), 7 has environment, 8 has non-opaque
-materials, 9 see-through material (-1: off).  Float options ``fopts`` (float64): 0 ray offset eps, 1 filter radius (pixels),
-2 ray-cone spread (radians per unit length travelled), 3 ray-cone base width (world units;
-orthographic cameras), 4 see-through background radiance; base colour and metallic-roughness lookups on the path's surfaces are
-filtered for the cone's footprint (``texture_kernels``), the other slots read level 0.
+materials, 9 see-through material (-1: off).  Float options ``fopts`` (float64): 0 ray offset
+eps, 1 filter radius (pixels), 2 ray-cone spread (radians per unit length travelled), 3 ray-cone
+base width (world units; orthographic cameras), 4 see-through background radiance; base colour
+and metallic-roughness lookups on the path's surfaces are filtered for the cone's footprint
+(``texture_kernels``), the other slots read level 0.
 
 See-through mode (``opts[9]`` = the studio floor's material, set by the batch for the white and
 transparent backgrounds): a camera path that reaches that material after only BSDF
