@@ -613,9 +613,13 @@ def _closest_core(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmi
                     hits, ts, b1s, b2s = _tri_test4(tris_f, pk, okx, oky, okz, kx, ky, kz, sx, sy, sz, t_lo, t_hi)
                     if hits != 0:
                         for k in range(4):
-                            if (hits >> k) & 1 and ts[k] < t_hi:
-                                t_hi = np.float32(ts[k])
-                                t_best = np.float32(ts[k])
+                            # the open interval is decided on the reported float32 t (as in
+                            # _any_core): the two cores are compiled apart and may round t64
+                            # differently, but never across a float32 boundary at tmax
+                            t32 = np.float32(ts[k])
+                            if (hits >> k) & 1 and t32 < t_hi and t32 > t_lo:
+                                t_hi = t32
+                                t_best = t32
                                 tri_best = 4 * pk + k
                                 b1_best = np.float32(b1s[k])
                                 b2_best = np.float32(b2s[k])
@@ -683,8 +687,13 @@ def _any_core(nodes_f, nodes_i, tris_f, tri_ids, ox, oy, oz, dx, dy, dz, tmin, t
                 for pk in range(first_pack, first_pack + ((v & 7) + 3) // 4):
                     hits, ts, b1s, b2s = _tri_test4(tris_f, pk, okx, oky, okz, kx, ky, kz, sx, sy, sz, t_lo, t_hi)
                     if hits != 0:
-                        hit_any = True
-                        break
+                        for k in range(4):
+                            t32 = np.float32(ts[k])  # the closest-hit core's rule
+                            if (hits >> k) & 1 and t32 < t_hi and t32 > t_lo:
+                                hit_any = True
+                                break
+                        if hit_any:
+                            break
                 if hit_any:
                     break
             if sp == 0:

@@ -90,6 +90,24 @@ def test_closest_hit_matches_brute_force(pos, data):
     _check_against_brute_force(pos, tris, o, d, 0.0, tmax)
 
 
+def test_a_hit_exactly_at_tmax_is_outside_for_both_queries():
+    # Found by hypothesis: a ray ending exactly on a vertex (t = tmax = 1).  The interval is open,
+    # so neither query may report it; before, the closest-hit core rounded t64 = 1 - 1e-16 to the
+    # float32 t = 1.0 and kept it while the any-hit core said no.  Degenerate triangles at the same
+    # vertex ride along (never hit).
+    pos = np.array([[0.96875, 0.5, 0.5], [0.5, -0.5078125, 0.5], [0.5, 0.5, 0.5]], np.float32)
+    for tris in (np.array([[0, 1, 2]], np.int32), np.array([[2, 2, 2]] * 16 + [[0, 1, 2]], np.int32)):
+        b = build_bvh(pos, tris)
+        o = np.zeros((4, 3), np.float32)
+        d = np.full((4, 3), 0.5, np.float32)
+        for tmax, inside in ((1.0, False), (np.nextafter(np.float32(1.0), np.float32(2.0)), True)):
+            hits = intersect(b, o, d, 0.0, tmax)
+            occ = occluded(b, o, d, 0.0, tmax)
+            np.testing.assert_array_equal(occ, np.isfinite(hits.t))
+            assert occ.all() == inside and (not inside or np.all(hits.t < tmax))
+        _check_against_brute_force(pos, tris, o, d, 0.0, 1.0)
+
+
 def test_random_soup_many_rays():
     rng = np.random.default_rng(7)
     pos = rng.normal(size=(600, 3)).astype(np.float32)
