@@ -420,7 +420,7 @@ def _render_shot(task: ShotTask) -> ShotResult:
     t_render = time.perf_counter()
     radiance = film.radiance
     if task.quality.denoise:
-        radiance = _maybe_denoise(film, task.threads)
+        radiance = _maybe_denoise(film, task.threads, sample_mask)
     see = film.see_through
     if see is not None and task.quality.denoise:
         see = _denoise_see_through(film, task.threads)
@@ -495,11 +495,28 @@ def _sample_mask(coverage: np.ndarray, margin_px: int = 16) -> np.ndarray:
     return np.repeat(np.repeat(tiles, tile, axis=0), tile, axis=1)[:h, :w]
 
 
-def _maybe_denoise(film, threads=None):
-    """The film denoised with its albedo and normal passes (raw radiance where no denoiser runs)."""
+def _mask_box(mask, margin_px: int = 16):
+    """(y0, y1, x0, x1) around the True pixels of ``mask`` plus ``margin_px`` (None: no mask,
+    or nothing in it)."""
+    if mask is None:
+        return None
+    rows = np.flatnonzero(np.any(mask, axis=1))
+    cols = np.flatnonzero(np.any(mask, axis=0))
+    if rows.size == 0:
+        return None
+    return rows[0] - margin_px, rows[-1] + 1 + margin_px, cols[0] - margin_px, cols[-1] + 1 + margin_px
+
+
+def _maybe_denoise(film, threads=None, sample_mask=None):
+    """The film denoised with its albedo and normal passes (raw radiance where no denoiser runs).
+
+    With a ``sample_mask`` (white and transparent backgrounds) only the box around the sampled
+    pixels, plus a margin for the denoiser's neighbourhood, is denoised: nothing outside the
+    mask is ever shown.
+    """
     from ..imaging.denoise import denoise_film_if_available
 
-    return denoise_film_if_available(film, threads=threads)
+    return denoise_film_if_available(film, threads=threads, region=_mask_box(sample_mask))
 
 
 def _denoise_see_through(film, threads=None, margin_px: int = 16):
@@ -511,12 +528,11 @@ def _denoise_see_through(film, threads=None, margin_px: int = 16):
     see = film.see_through
     if see is None or not is_available():
         return see
-    rows = np.flatnonzero(np.any(see > 0.0, axis=(1, 2)))
-    cols = np.flatnonzero(np.any(see > 0.0, axis=(0, 2)))
-    if rows.size == 0:
+    box = _mask_box(np.any(see > 0.0, axis=2), margin_px)
+    if box is None:
         return see
-    y0, y1 = max(0, rows[0] - margin_px), min(see.shape[0], rows[-1] + 1 + margin_px)
-    x0, x1 = max(0, cols[0] - margin_px), min(see.shape[1], cols[-1] + 1 + margin_px)
+    y0, y1, x0, x1 = box
+    y0, y1, x0, x1 = max(0, y0), min(see.shape[0], y1), max(0, x0), min(see.shape[1], x1)
     out = np.array(see, np.float64)
     out[y0:y1, x0:x1] = denoise(see[y0:y1, x0:x1], albedo=film.albedo[y0:y1, x0:x1],
                                 normal=film.normal[y0:y1, x0:x1], threads=threads)

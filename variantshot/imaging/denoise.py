@@ -364,7 +364,8 @@ def denoise(
     return result
 
 
-def denoise_film(film, *, threads: int | None = None, quality: str = "high", **options) -> np.ndarray:
+def denoise_film(film, *, threads: int | None = None, quality: str = "high", region=None,
+                 **options) -> np.ndarray:
     """Denoise a :class:`~variantshot.imaging.film.Film` with its albedo and normal passes.
 
     Parameters
@@ -373,6 +374,10 @@ def denoise_film(film, *, threads: int | None = None, quality: str = "high", **o
         ``radiance``, ``albedo``, ``normal`` (H, W, 3) and ``alpha`` (H, W) are used.
     threads, quality, **options
         Passed to :func:`denoise`.
+    region : (y0, y1, x0, x1), optional
+        Denoise only this window (the rest keeps the raw radiance): the batch passes the box
+        around the pixels a white or transparent composite can show, so the denoiser does not
+        spend its time on backdrop pixels that are thrown away.
 
     Returns
     -------
@@ -381,7 +386,18 @@ def denoise_film(film, *, threads: int | None = None, quality: str = "high", **o
         a directly seen environment, noise-free up to anti-aliasing) keep their input value
         bit for bit.
     """
-    out = denoise(film.radiance, albedo=film.albedo, normal=film.normal, threads=threads, quality=quality, **options)
+    if region is not None:
+        y0, y1, x0, x1 = (int(v) for v in region)
+        h, w = np.shape(film.alpha)[:2]
+        y0, y1, x0, x1 = max(0, y0), min(h, y1), max(0, x0), min(w, x1)
+        out = np.array(film.radiance, np.float64)
+        if y1 > y0 and x1 > x0:
+            out[y0:y1, x0:x1] = denoise(film.radiance[y0:y1, x0:x1], albedo=film.albedo[y0:y1, x0:x1],
+                                        normal=film.normal[y0:y1, x0:x1], threads=threads, quality=quality,
+                                        **options)
+    else:
+        out = denoise(film.radiance, albedo=film.albedo, normal=film.normal, threads=threads, quality=quality,
+                      **options)
     alpha = np.asarray(film.alpha)
     if alpha.shape == out.shape[:2]:
         miss = alpha <= 0.0
@@ -392,7 +408,7 @@ def denoise_film(film, *, threads: int | None = None, quality: str = "high", **o
     return out
 
 
-def denoise_film_if_available(film, *, threads: int | None = None) -> np.ndarray:
+def denoise_film_if_available(film, *, threads: int | None = None, region=None) -> np.ndarray:
     """:func:`denoise_film` where the denoiser can run here; the film's raw radiance otherwise.
 
     The one call the batch and ``trace`` make: a machine without a ``pyoidn`` wheel still
@@ -400,4 +416,4 @@ def denoise_film_if_available(film, *, threads: int | None = None) -> np.ndarray
     """
     if not is_available():
         return film.radiance
-    return denoise_film(film, threads=threads)
+    return denoise_film(film, threads=threads, region=region)

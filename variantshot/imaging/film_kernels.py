@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from .. import _jit  # noqa: F401
-from .._jit import PARALLEL, njit, prange
+from .._jit import KERNEL, PARALLEL, njit, prange
 
 import math
 
@@ -103,3 +103,19 @@ def tile_relative_error(sum_rgb, sum_sq, n_pixel, tile_px, floor, out):
                 continue
             mean_y = sum_y / count
             out[ty, tx] = math.sqrt(sum_var / count) / max(mean_y, floor)
+
+
+@njit(**KERNEL)
+def mean_sampled_luminance(sum_rgb, n_pixel):
+    """Mean over the sampled pixels (``n_pixel > 0``) of the Rec. 709 / sRGB luminance
+    0.2126 R + 0.7152 G + 0.0722 B of each pixel's mean; 0 when none is sampled.  Serial, so
+    the sum's order, and the result, does not depend on the thread count."""
+    total = 0.0
+    count = 0
+    for y in range(sum_rgb.shape[0]):
+        for x in range(sum_rgb.shape[1]):
+            n = n_pixel[y, x]
+            if n > 0.0:
+                total += (0.2126 * sum_rgb[y, x, 0] + 0.7152 * sum_rgb[y, x, 1] + 0.0722 * sum_rgb[y, x, 2]) / n
+                count += 1
+    return total / count if count > 0 else 0.0

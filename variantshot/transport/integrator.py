@@ -91,13 +91,11 @@ def _still_noisy(sums, active: np.ndarray, settings: RenderSettings) -> np.ndarr
     the image, is the same on any thread count.  A stopped tile never restarts.
     """
     from ..imaging.film import tile_relative_error
+    from ..imaging.film_kernels import mean_sampled_luminance
 
     h, w = active.shape
     tile = settings.noise_tile_px
-    sampled = sums.n_pixel > 0
-    n = np.maximum(sums.n_pixel, 1.0)
-    lum = (sums.rgb / n[..., None]) @ np.array([0.2126, 0.7152, 0.0722])
-    floor = max(settings.noise_floor * float(np.mean(lum[sampled])) if sampled.any() else 0.0, 1e-12)
+    floor = max(settings.noise_floor * mean_sampled_luminance(sums.rgb, sums.n_pixel), 1e-12)
     err = tile_relative_error(sums, tile, floor)
     noisy = np.repeat(np.repeat(err > settings.noise_target, tile, axis=0), tile, axis=1)[:h, :w]
     return (active.astype(bool) & noisy).astype(np.uint8)

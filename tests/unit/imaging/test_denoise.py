@@ -202,6 +202,27 @@ def test_denoise_film_keeps_directly_seen_background_bit_for_bit():
     assert not np.array_equal(out[~miss], radiance[~miss])  # the product was denoised
 
 
+def test_denoising_a_window_keeps_the_rest_raw_and_the_window_as_full_frame():
+    """``region`` (the batch's box around a white shot's sampled pixels): outside it the raw
+    radiance bit for bit; inside, away from the window's edge, what full-frame denoising gives
+    (the RT filter's neighbourhood is local; agreement within 1 % of the mean, common practice,
+    no source)."""
+    from types import SimpleNamespace
+
+    rng = np.random.default_rng(5)
+    clean, albedo, normal = _edge_image(192)
+    noisy = _noisy(rng, clean, 0.4)
+    film = SimpleNamespace(radiance=noisy, albedo=albedo, normal=normal, alpha=np.ones(clean.shape[:2]))
+    full = dn.denoise_film(film, threads=2)
+    part = dn.denoise_film(film, threads=2, region=(40, 160, 24, 176))
+    inside = np.zeros(clean.shape[:2], bool)
+    inside[40:160, 24:176] = True
+    assert np.array_equal(part[~inside], noisy[~inside])
+    core = (slice(72, 128), slice(56, 144))  # 32 px inside the window's edge
+    assert np.abs(part[core] - full[core]).mean() <= 0.01 * full[core].mean()
+    assert not np.array_equal(part[inside], noisy[inside])
+
+
 # ---------------------------------------------------------------- (3) noise reduction
 
 

@@ -30,3 +30,16 @@ def test_resolve_matches_numpy_statistics():
     np.testing.assert_allclose(film.alpha, 0.5)
     assert np.isinf(film.depth[0, 0]) and film.depth[1, 1] == 2.5
     assert film.spp == n and film.radiance.dtype == np.float64 and film.radiance.shape == (h, w, 3)
+
+
+def test_mean_sampled_luminance_matches_numpy():
+    # Rec. ITU-R BT.709 / IEC 61966-2-1 luminance weights of linear sRGB; unsampled pixels left out.
+    from variantshot.imaging.film_kernels import mean_sampled_luminance
+
+    rng = np.random.default_rng(4)
+    sums = rng.random((13, 17, 3)) * 40
+    n = rng.integers(0, 5, (13, 17)).astype(np.float64)
+    sampled = n > 0
+    lum = (sums / np.maximum(n, 1)[..., None]) @ np.array([0.2126, 0.7152, 0.0722])
+    assert np.isclose(mean_sampled_luminance(sums, n), lum[sampled].mean(), rtol=1e-12, atol=0.0)
+    assert mean_sampled_luminance(sums, np.zeros((13, 17))) == 0.0
