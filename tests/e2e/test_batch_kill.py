@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from variantshot.batch.lock import LOCK_NAME
+from variantshot._lock import LOCK_NAME
 from variantshot.batch.manifest import check_manifest, entry_is_current, load_manifest
 
 DATA = Path(__file__).resolve().parents[1] / "data" / "batch"

@@ -117,7 +117,7 @@ def test_a_held_lock_exits_3_and_a_stale_one_is_taken_over(tiny_draft, catalog, 
     import subprocess
     import sys
 
-    from variantshot.batch.lock import LOCK_NAME, acquire_lock
+    from variantshot._lock import LOCK_NAME, acquire_lock
 
     out = tmp_path / "out"
     with acquire_lock(out):

@@ -143,7 +143,7 @@ def test_check_reports_a_broken_model(repo_dir, tmp_path):
 
 
 def test_expand_respects_the_output_lock(repo_dir, tmp_path):
-    from variantshot.batch.lock import acquire_lock
+    from variantshot._lock import acquire_lock
 
     out = tmp_path / "out"
     with acquire_lock(out):  # this process is alive, so the lock is live

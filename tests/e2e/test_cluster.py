@@ -106,7 +106,7 @@ def test_a_lost_scheduler_stops_the_batch_with_a_clear_error_and_a_consistent_fo
     from distributed import LocalCluster
 
     from variantshot.batch.cluster import DaskExecutor
-    from variantshot.batch.lock import LOCK_NAME
+    from variantshot._lock import LOCK_NAME
     from variantshot.batch.runner import render_batch
     from variantshot.errors import RenderError
 
@@ -255,7 +255,7 @@ def test_the_client_killed_mid_run_leaves_a_consistent_folder_and_the_next_run_r
     _need_dask()
     import time
 
-    from variantshot.batch.lock import LOCK_NAME
+    from variantshot._lock import LOCK_NAME
     from variantshot.batch.manifest import entry_is_current
 
     catalog, templates = demo

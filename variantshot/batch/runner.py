@@ -722,7 +722,7 @@ def render_batch(
     from ..catalog.expand import CheckReport, _BufferCache, expand_variant, write_scenes
     from ..catalog.validate import read_catalog
     from .executors import LocalExecutor
-    from .lock import acquire_lock
+    from .._lock import acquire_lock
     from .manifest import load_manifest, save_manifest
     from .plan import batch_settings, default_rig_name, plan_shots, shot_id
     from .quality import match_only, parse_formats, quality_preset

@@ -622,7 +622,7 @@ def expand_catalog(path, out_dir, *, templates_dir=None, progress=None):
     """Check a catalog completely, then write every variant's scene to ``<out_dir>/scenes/``.
 
     Nothing is written when the catalog, a template or a model has an error.  The output
-    folder's lock (:mod:`variantshot.batch.lock`) is held while writing, so ``expand`` and a
+    folder's lock (:mod:`variantshot._lock`) is held while writing, so ``expand`` and a
     batch never write the same folder at once.
 
     Returns
@@ -635,7 +635,7 @@ def expand_catalog(path, out_dir, *, templates_dir=None, progress=None):
     LockedError
         Another run holds the output folder.
     """
-    from ..batch.lock import acquire_lock
+    from .._lock import acquire_lock
     from .validate import read_catalog
 
     catalog = read_catalog(path, templates_dir=templates_dir)

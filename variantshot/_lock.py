@@ -23,7 +23,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from ..errors import LockedError
+from .errors import LockedError
 
 __all__ = ["LOCK_NAME", "BatchLock", "acquire_lock", "read_lock", "is_stale"]
 

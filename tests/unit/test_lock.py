@@ -8,7 +8,7 @@ import sys
 
 import pytest
 
-from variantshot.batch.lock import LOCK_NAME, acquire_lock, read_lock
+from variantshot._lock import LOCK_NAME, acquire_lock, read_lock
 from variantshot.errors import LockedError
 
 
