@@ -593,7 +593,8 @@ def build_rig(
     camera : Camera, optional
         The shot's camera: the rig turns so that its +Z faces it, and a soft box other than
         the key that would stand between the lens and the product (an overhead box seen from a
-        top view) is left out of that shot.
+        top view) is left out of that shot; a key that would is swung round the product, away
+        from the lens, until the view is clear.
     key_to_fill, rotation_deg : float, optional
         Override the rig file's ratio and rotation (batch settings).
 
@@ -629,8 +630,21 @@ def build_rig(
         corners8 = np.array([[x, y, z] for x in (lo[0], hi[0]) for y in (lo[1], hi[1]) for z in (lo[2], hi[2])])
         targets = np.vstack([corners8, centre[None]])
         for b in spec.boxes:
-            if b.role != "key" and _quad_blocks(placed[b.name], eye, targets):
+            if not _quad_blocks(placed[b.name], eye, targets):
+                continue
+            if b.role != "key":
                 blocked.add(b.name)
+                continue
+            # The key cannot be left out: swing it round the product, away from the lens, until
+            # the view is clear (a high camera looks straight through a high key's back).
+            swing = -1.0 if b.azimuth_deg <= 0.0 else 1.0
+            for step_deg in range(5, 181, 5):
+                d = rot @ _direction(b.azimuth_deg + swing * step_deg, b.elevation_deg)
+                corners = _box_corners(centre + b.distance * R * d, -d, b.width * R, b.height * R)
+                if not _quad_blocks(corners, eye, targets):
+                    placed[b.name] = corners
+                    unit[b.name] = polygon_irradiance(corners, 1.0, centre, d)
+                    break
     for b in spec.boxes:
         if b.name in blocked:
             continue  # it would stand between the lens and the product (a top view, say)

@@ -16,6 +16,7 @@ from variantshot.geometry.rig import (
     rig_names,
     sweep_profile,
 )
+from variantshot.catalog.angles import ANGLE_PRESETS, frame_angle
 from variantshot.geometry.scene import Camera
 
 BOUNDS = (np.array([-0.1, 0.0, -0.05]), np.array([0.1, 0.3, 0.05]))
@@ -250,3 +251,21 @@ def test_direct_light_ratio_environment_only():
     roof = np.array([[-1e3, y, -1e3], [1e3, y, -1e3], [1e3, y, 1e3], [-1e3, y, 1e3]], np.float32)
     tris = np.array([[0, 1, 2], [0, 2, 3]], np.int32)
     assert direct_light_ratio(r, floor, up, build_bvh(roof, tris))[0] == 0.0
+
+
+@pytest.mark.parametrize("rig_name", rig_names())
+@pytest.mark.parametrize("angle", sorted(ANGLE_PRESETS))
+def test_no_soft_box_stands_between_lens_and_product(rig_name, angle):
+    # Geometry of sight lines (a segment-rectangle test, common practice, no source): from every
+    # named angle the lens must see every corner of the product's box, under every bundled rig,
+    # and the key is always lit (a dropped key would leave a black frame).
+    lo, hi = BOUNDS
+    corners = np.array([[x, y, z] for x in (lo[0], hi[0]) for y in (lo[1], hi[1]) for z in (lo[2], hi[2])])
+    pose = frame_angle(corners, angle)
+    cam = Camera(name=angle, kind="perspective", world_from_camera=pose, yfov_rad=0.35)
+    rig = build_rig(rig_name, BOUNDS, camera=cam)
+    assert any(b.role == "key" and b.name in rig.box_radiance for b in load_rig(rig_name).boxes)
+    eye = pose[:3, 3]
+    targets = np.vstack([corners, (0.5 * (lo + hi))[None]])
+    for name, quad in rig.box_corners.items():
+        assert not rigmod._quad_blocks(np.asarray(quad), eye, targets), f"{rig_name}/{angle}: box {name!r} blocks the view"
