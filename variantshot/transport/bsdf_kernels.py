@@ -123,11 +123,16 @@ import math
 
 import numpy as np
 
+from .layout_kernels import (
+    B_ALPHA_X, B_ALPHA_Y, B_BASE_B, B_BASE_G, B_BASE_R, B_CLEARCOAT, B_CLEARCOAT_ALPHA, B_COAT_NX,
+    B_COAT_NY, B_COAT_NZ, B_ETA, B_F0_B, B_F0_G, B_F0_R, B_F90, B_METALLIC, B_SHEEN_B, B_SHEEN_G,
+    B_SHEEN_R, B_SHEEN_ROUGHNESS, B_THIN, B_TRANSMISSION, MAT_ANISOTROPY, MAT_CLEARCOAT,
+    MAT_CLEARCOAT_ROUGHNESS, MAT_IOR, MAT_KIND, MAT_SHEEN_B, MAT_SHEEN_G, MAT_SHEEN_R,
+    MAT_SHEEN_ROUGHNESS, MAT_SPECULAR, MAT_SPECULAR_B, MAT_SPECULAR_G, MAT_SPECULAR_R,
+    MAT_THICKNESS, MAT_TRANSMISSION, MATERIAL_METAL_ROUGH, N_BSDF,  # noqa: F401 (re-exported)
+)
 from .sampling_kernels import cosine_hemisphere_pdf, onb_from_normal, sample_cosine_hemisphere
 
-
-MATERIAL_METAL_ROUGH = 0
-N_BSDF = 25
 SHEEN_R_MIN = 0.007  # sheen r = sheenRoughness**2 never below this
 ALPHA_MIN = 0.002  # alpha = roughness**2 never below this (roughness ~0.045)
 
@@ -324,7 +329,7 @@ def vndf_pdf_h(ax, ay, wox, woy, woz, hx, hy, hz):
 @njit(**KERNEL)
 def coat_cos(bsdf, wox, woy, woz):
     """Nc.wo, the cosine of the view to the clearcoat normal."""
-    return bsdf[22] * wox + bsdf[23] * woy + bsdf[24] * woz
+    return bsdf[B_COAT_NX] * wox + bsdf[B_COAT_NY] * woy + bsdf[B_COAT_NZ] * woz
 
 
 @njit(**KERNEL)
@@ -333,15 +338,15 @@ def layer_scales(bsdf, mu_o, mu_c):
 
     ``mu_o`` = n.wo (sheen), ``mu_c`` = Nc.wo (coat); a coat seen from behind (mu_c <= 0) has weight 0.
     """
-    cc = bsdf[14]
+    cc = bsdf[B_CLEARCOAT]
     fc = 0.0
     if cc > 0.0 and mu_c > 0.0:
         fc = cc * (0.04 + 0.96 * (1.0 - min(mu_c, 1.0)) ** 5)
-    smax = max(bsdf[16], max(bsdf[17], bsdf[18]))
+    smax = max(bsdf[B_SHEEN_R], max(bsdf[B_SHEEN_G], bsdf[B_SHEEN_B]))
     e_norm = 1.0
     s_scale = 1.0
     if smax > 0.0:
-        e = sheen_albedo(mu_o, bsdf[19])
+        e = sheen_albedo(mu_o, bsdf[B_SHEEN_ROUGHNESS])
         e_norm = max(e, 1.0)
         s_scale = 1.0 - smax * min(e, 1.0)
     return fc, 1.0 - fc, e_norm, s_scale
@@ -352,21 +357,21 @@ def lobe_weights(bsdf, mu_o, mu_c):
     """Estimated albedos at wo of the lobes (specular, diffuse, dielectric, coat, sheen)."""
     fc, c_scale, e_norm, s_scale = layer_scales(bsdf, mu_o, mu_c)
     scale = c_scale * s_scale
-    m = bsdf[4]
-    tr = bsdf[11]
+    m = bsdf[B_METALLIC]
+    tr = bsdf[B_TRANSMISSION]
     s = (1.0 - min(max(mu_o, 0.0), 1.0)) ** 5
-    f90 = bsdf[7]
-    fmax = max(bsdf[8] + (f90 - bsdf[8]) * s, max(bsdf[9] + (f90 - bsdf[9]) * s, bsdf[10] + (f90 - bsdf[10]) * s))
-    base_lum = luminance(bsdf[1], bsdf[2], bsdf[3])
+    f90 = bsdf[B_F90]
+    fmax = max(bsdf[B_F0_R] + (f90 - bsdf[B_F0_R]) * s, max(bsdf[B_F0_G] + (f90 - bsdf[B_F0_G]) * s, bsdf[B_F0_B] + (f90 - bsdf[B_F0_B]) * s))
+    base_lum = luminance(bsdf[B_BASE_R], bsdf[B_BASE_G], bsdf[B_BASE_B])
     w_spec = scale * ((1.0 - m) * (1.0 - tr) * fmax + m * (base_lum + (1.0 - base_lum) * s))
     w_diff = scale * (1.0 - m) * (1.0 - tr) * (1.0 - fmax) * base_lum
     w_diel = 0.0
     if tr > 0.0:
-        fe = fresnel_dielectric(mu_o, bsdf[12])
+        fe = fresnel_dielectric(mu_o, bsdf[B_ETA])
         w_diel = scale * (1.0 - m) * tr * (fe + (1.0 - fe) * max(base_lum, 0.05))
     w_coat = fc
     w_sheen = 0.0
-    if s_scale < 1.0 or bsdf[16] + bsdf[17] + bsdf[18] > 0.0:
+    if s_scale < 1.0 or bsdf[B_SHEEN_R] + bsdf[B_SHEEN_G] + bsdf[B_SHEEN_B] > 0.0:
         w_sheen = c_scale * (1.0 - s_scale)
     return w_spec, w_diff, w_diel, w_coat, w_sheen
 
@@ -378,12 +383,6 @@ def lobe_probabilities(bsdf, mu_o, mu_c):
     if tot <= 0.0:
         return 1.0, 0.0, 0.0, 0.0, 0.0
     return w0 / tot, w1 / tot, w2 / tot, w3 / tot, w4 / tot
-
-
-@njit(**KERNEL)
-def specular_probability(bsdf, cos_o):
-    """Probability of sampling the base's specular GGX lobe at n.wo (coat normal = n)."""
-    return lobe_probabilities(bsdf, cos_o, cos_o)[0]
 
 
 @njit(**KERNEL)
@@ -405,13 +404,13 @@ def eval_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     """BSDF value f(wo, wi) (RGB, 1/sr); reflection for wi.z > 0, transmission for wi.z < 0."""
     if woz <= 0.0 or wiz == 0.0:
         return 0.0, 0.0, 0.0
-    ax = bsdf[20]
-    ay = bsdf[21]
-    m = bsdf[4]
-    tr = bsdf[11]
-    br = bsdf[1]
-    bg = bsdf[2]
-    bb = bsdf[3]
+    ax = bsdf[B_ALPHA_X]
+    ay = bsdf[B_ALPHA_Y]
+    m = bsdf[B_METALLIC]
+    tr = bsdf[B_TRANSMISSION]
+    br = bsdf[B_BASE_R]
+    bg = bsdf[B_BASE_G]
+    bb = bsdf[B_BASE_B]
     mu_c = coat_cos(bsdf, wox, woy, woz)
     fc, c_scale, e_norm, s_scale = layer_scales(bsdf, woz, mu_c)
     scale = c_scale * s_scale
@@ -419,7 +418,7 @@ def eval_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     if wiz < 0.0:
         if tr <= 0.0 or m >= 1.0:
             return 0.0, 0.0, 0.0
-        if bsdf[13] > 0.5:
+        if bsdf[B_THIN] > 0.5:
             # thin-walled: the reflection of the mirrored direction
             rz = -wiz
             hx = wox + wix
@@ -432,11 +431,11 @@ def eval_f(bsdf, wox, woy, woz, wix, wiy, wiz):
             hy /= hl
             hz /= hl
             voh = wox * hx + woy * hy + woz * hz
-            fe = fresnel_dielectric(voh, bsdf[12])
+            fe = fresnel_dielectric(voh, bsdf[B_ETA])
             g2 = 1.0 / (1.0 + lam_o + lambda_aniso(ax, ay, wix, wiy, rz))
             v = (1.0 - fe) * ggx_d_aniso(ax, ay, hx, hy, hz) * g2 / (4.0 * woz * rz)
         else:
-            eta = bsdf[12]
+            eta = bsdf[B_ETA]
             hx, hy, hz = refraction_half(eta, wox, woy, woz, wix, wiy, wiz)
             if hz <= 0.0:
                 return 0.0, 0.0, 0.0
@@ -466,10 +465,10 @@ def eval_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     g2 = 1.0 / (1.0 + lam_o + lambda_aniso(ax, ay, wix, wiy, wiz))
     spec = ggx_d_aniso(ax, ay, hx, hy, hz) * g2 / (4.0 * woz * wiz)
     s = (1.0 - min(v_dot_h, 1.0)) ** 5
-    f90 = bsdf[7]
-    fdr = bsdf[8] + (f90 - bsdf[8]) * s
-    fdg = bsdf[9] + (f90 - bsdf[9]) * s
-    fdb = bsdf[10] + (f90 - bsdf[10]) * s
+    f90 = bsdf[B_F90]
+    fdr = bsdf[B_F0_R] + (f90 - bsdf[B_F0_R]) * s
+    fdg = bsdf[B_F0_G] + (f90 - bsdf[B_F0_G]) * s
+    fdb = bsdf[B_F0_B] + (f90 - bsdf[B_F0_B]) * s
     fmax = max(fdr, max(fdg, fdb))
     wo_ = (1.0 - m) * (1.0 - tr)
     diffuse = wo_ * (1.0 - fmax) / math.pi
@@ -477,7 +476,7 @@ def eval_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     fg = spec * (wo_ * fdg + m * (bg + (1.0 - bg) * s)) + diffuse * bg
     fb = spec * (wo_ * fdb + m * (bb + (1.0 - bb) * s)) + diffuse * bb
     if tr > 0.0 and m < 1.0:
-        fe = fresnel_dielectric(wox * hx + woy * hy + woz * hz, bsdf[12])
+        fe = fresnel_dielectric(wox * hx + woy * hy + woz * hz, bsdf[B_ETA])
         kd = (1.0 - m) * tr * fe * spec
         fr += kd
         fg += kd
@@ -486,36 +485,21 @@ def eval_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     fg *= scale
     fb *= scale
     if s_scale < 1.0:
-        ks = charlie_d(bsdf[19], hz) * sheen_visibility(wiz, woz) / e_norm
-        fr += c_scale * bsdf[16] * ks
-        fg += c_scale * bsdf[17] * ks
-        fb += c_scale * bsdf[18] * ks
+        ks = charlie_d(bsdf[B_SHEEN_ROUGHNESS], hz) * sheen_visibility(wiz, woz) / e_norm
+        fr += c_scale * bsdf[B_SHEEN_R] * ks
+        fg += c_scale * bsdf[B_SHEEN_G] * ks
+        fb += c_scale * bsdf[B_SHEEN_B] * ks
     if fc > 0.0:
         # the coat about Nc; f x n.wi = coat BRDF x Nc.wi (exactly the old form when Nc = n)
-        ac = bsdf[15]
-        hzc = bsdf[22] * hx + bsdf[23] * hy + bsdf[24] * hz
-        wizc = bsdf[22] * wix + bsdf[23] * wiy + bsdf[24] * wiz
+        ac = bsdf[B_CLEARCOAT_ALPHA]
+        hzc = bsdf[B_COAT_NX] * hx + bsdf[B_COAT_NY] * hy + bsdf[B_COAT_NZ] * hz
+        wizc = bsdf[B_COAT_NX] * wix + bsdf[B_COAT_NY] * wiy + bsdf[B_COAT_NZ] * wiz
         if wizc > 0.0:
             kc = fc * ggx_d(ac, hzc) * visibility_height_correlated(ac, wizc, mu_c) * (wizc / wiz)
             fr += kc
             fg += kc
             fb += kc
     return fr, fg, fb
-
-
-@njit(**KERNEL)
-def vndf_pdf(alpha, wox, woy, woz, wix, wiy, wiz):
-    """Density of reflecting wo about a visible normal: D_wo(h) / (4 wo.h) = G1(wo) D(h) / (4 wo.z)."""
-    if woz <= 0.0 or wiz <= 0.0:
-        return 0.0
-    hx = wox + wix
-    hy = woy + wiy
-    hz = woz + wiz
-    hl = math.sqrt(hx * hx + hy * hy + hz * hz)
-    if hl <= 0.0:
-        return 0.0
-    hz /= hl
-    return smith_g1(alpha, woz) * ggx_d(alpha, hz) / (4.0 * woz)
 
 
 @njit(**KERNEL)
@@ -533,8 +517,8 @@ def coat_pdf(bsdf, wox, woy, woz, wix, wiy, wiz):
     hl = math.sqrt(hx * hx + hy * hy + hz * hz)
     if hl <= 0.0:
         return 0.0
-    hzc = (bsdf[22] * hx + bsdf[23] * hy + bsdf[24] * hz) / hl
-    return smith_g1(bsdf[15], mu_c) * ggx_d(bsdf[15], hzc) / (4.0 * mu_c)
+    hzc = (bsdf[B_COAT_NX] * hx + bsdf[B_COAT_NY] * hy + bsdf[B_COAT_NZ] * hz) / hl
+    return smith_g1(bsdf[B_CLEARCOAT_ALPHA], mu_c) * ggx_d(bsdf[B_CLEARCOAT_ALPHA], hzc) / (4.0 * mu_c)
 
 
 @njit(**KERNEL)
@@ -560,9 +544,9 @@ def reflect_pdf_aniso(ax, ay, wox, woy, woz, wix, wiy, wiz):
 @njit(**KERNEL)
 def dielectric_pdf(bsdf, wox, woy, woz, wix, wiy, wiz):
     """Density of the dielectric lobe's sample (reflection with probability F(wo.h), else refraction)."""
-    ax = bsdf[20]
-    ay = bsdf[21]
-    eta = bsdf[12]
+    ax = bsdf[B_ALPHA_X]
+    ay = bsdf[B_ALPHA_Y]
+    eta = bsdf[B_ETA]
     if wiz > 0.0:
         hx = wox + wix
         hy = woy + wiy
@@ -577,7 +561,7 @@ def dielectric_pdf(bsdf, wox, woy, woz, wix, wiy, wiz):
         if d <= 0.0:
             return 0.0
         return fresnel_dielectric(d, eta) * vndf_pdf_h(ax, ay, wox, woy, woz, hx, hy, hz) / (4.0 * d)
-    if bsdf[13] > 0.5:
+    if bsdf[B_THIN] > 0.5:
         rz = -wiz
         hx = wox + wix
         hy = woy + wiy
@@ -616,7 +600,7 @@ def pdf_f(bsdf, wox, woy, woz, wix, wiy, wiz):
     if wiz < 0.0:
         return pdf
     if p0 > 0.0:
-        pdf += p0 * reflect_pdf_aniso(bsdf[20], bsdf[21], wox, woy, woz, wix, wiy, wiz)
+        pdf += p0 * reflect_pdf_aniso(bsdf[B_ALPHA_X], bsdf[B_ALPHA_Y], wox, woy, woz, wix, wiy, wiz)
     if p1 > 0.0:
         pdf += p1 * cosine_hemisphere_pdf(wiz)
     if p3 > 0.0:
@@ -643,7 +627,7 @@ def sample_f(bsdf, wox, woy, woz, u_lobe, u0, u1):
     p0, p1, p2, p3, p4 = lobe_probabilities(bsdf, woz, coat_cos(bsdf, wox, woy, woz))
     transmit = False
     if u_lobe < p0:
-        hx, hy, hz = sample_vndf_aniso(bsdf[20], bsdf[21], wox, woy, woz, u0, u1)
+        hx, hy, hz = sample_vndf_aniso(bsdf[B_ALPHA_X], bsdf[B_ALPHA_Y], wox, woy, woz, u0, u1)
         d = wox * hx + woy * hy + woz * hz
         wix = 2.0 * d * hx - wox
         wiy = 2.0 * d * hy - woy
@@ -652,16 +636,16 @@ def sample_f(bsdf, wox, woy, woz, u_lobe, u0, u1):
         wix, wiy, wiz = sample_cosine_hemisphere(u0, u1)
     elif u_lobe < p0 + p1 + p2:
         u_r = (u_lobe - p0 - p1) / p2
-        hx, hy, hz = sample_vndf_aniso(bsdf[20], bsdf[21], wox, woy, woz, u0, u1)
+        hx, hy, hz = sample_vndf_aniso(bsdf[B_ALPHA_X], bsdf[B_ALPHA_Y], wox, woy, woz, u0, u1)
         d = wox * hx + woy * hy + woz * hz
-        eta = bsdf[12]
+        eta = bsdf[B_ETA]
         fe = fresnel_dielectric(d, eta)
         wix = 2.0 * d * hx - wox
         wiy = 2.0 * d * hy - woy
         wiz = 2.0 * d * hz - woz
         if u_r >= fe:
             transmit = True
-            if bsdf[13] > 0.5:
+            if bsdf[B_THIN] > 0.5:
                 wiz = -wiz
             else:
                 s2t = (1.0 - d * d) / (eta * eta)
@@ -675,15 +659,15 @@ def sample_f(bsdf, wox, woy, woz, u_lobe, u0, u1):
                 wiy /= wl
                 wiz /= wl
     elif u_lobe < p0 + p1 + p2 + p3:
-        if bsdf[24] >= 1.0:
-            hx, hy, hz = sample_vndf(bsdf[15], wox, woy, woz, u0, u1)
+        if bsdf[B_COAT_NZ] >= 1.0:
+            hx, hy, hz = sample_vndf(bsdf[B_CLEARCOAT_ALPHA], wox, woy, woz, u0, u1)
         else:
             # a visible normal of the coat in a frame (t, b, Nc) around its own normal
-            cx = bsdf[22]
-            cy = bsdf[23]
-            cz = bsdf[24]
+            cx = bsdf[B_COAT_NX]
+            cy = bsdf[B_COAT_NY]
+            cz = bsdf[B_COAT_NZ]
             tx, ty, tz, bx, by, bz = onb_from_normal(cx, cy, cz)
-            qx, qy, qz = sample_vndf(bsdf[15], wox * tx + woy * ty + woz * tz, wox * bx + woy * by + woz * bz,
+            qx, qy, qz = sample_vndf(bsdf[B_CLEARCOAT_ALPHA], wox * tx + woy * ty + woz * tz, wox * bx + woy * by + woz * bz,
                                      wox * cx + woy * cy + woz * cz, u0, u1)
             hx = qx * tx + qy * bx + qz * cx
             hy = qx * ty + qy * by + qz * cy
@@ -784,14 +768,14 @@ def material_bsdf_values(mat_table, mat, base_r, base_g, base_b, metallic, rough
     material (eta = ior); else out of it (eta = 1 / ior).  Thin-walled surfaces always use
     eta = ior.
     """
-    ior = float(mat_table[mat, 13])
+    ior = float(mat_table[mat, MAT_IOR])
     if ior <= 0.0:
         ior = 1.5
-    thin = 1.0 if mat_table[mat, 49] <= 0.0 else 0.0
+    thin = 1.0 if mat_table[mat, MAT_THICKNESS] <= 0.0 else 0.0
     eta = ior
     if thin < 0.5 and not entering:
         eta = 1.0 / ior
-    return make_bsdf_layers(float(mat_table[mat, 0]), base_r, base_g, base_b, metallic, roughness, ior,
+    return make_bsdf_layers(float(mat_table[mat, MAT_KIND]), base_r, base_g, base_b, metallic, roughness, ior,
                             specular, spec_r, spec_g, spec_b, transmission, eta, thin,
                             clearcoat, clearcoat_roughness, sheen_r, sheen_g, sheen_b, sheen_roughness,
                             anisotropy, coat_nx, coat_ny, coat_nz)
@@ -802,10 +786,10 @@ def material_bsdf(mat_table, mat, base_r, base_g, base_b, metallic, roughness, e
     """Resolved BSDF of material ``mat`` from its extension factors alone (no extension textures),
     the clearcoat on the shading normal; base colour / metallic / roughness given."""
     return material_bsdf_values(mat_table, mat, base_r, base_g, base_b, metallic, roughness, entering,
-                                float(mat_table[mat, 48]), float(mat_table[mat, 53]), float(mat_table[mat, 54]),
-                                float(mat_table[mat, 55]), float(mat_table[mat, 56]), float(mat_table[mat, 57]),
-                                float(mat_table[mat, 58]), float(mat_table[mat, 15]), float(mat_table[mat, 59]),
-                                float(mat_table[mat, 60]), float(mat_table[mat, 61]), float(mat_table[mat, 62]),
+                                float(mat_table[mat, MAT_TRANSMISSION]), float(mat_table[mat, MAT_CLEARCOAT]), float(mat_table[mat, MAT_CLEARCOAT_ROUGHNESS]),
+                                float(mat_table[mat, MAT_SHEEN_R]), float(mat_table[mat, MAT_SHEEN_G]), float(mat_table[mat, MAT_SHEEN_B]),
+                                float(mat_table[mat, MAT_SHEEN_ROUGHNESS]), float(mat_table[mat, MAT_SPECULAR]), float(mat_table[mat, MAT_SPECULAR_R]),
+                                float(mat_table[mat, MAT_SPECULAR_G]), float(mat_table[mat, MAT_SPECULAR_B]), float(mat_table[mat, MAT_ANISOTROPY]),
                                 0.0, 0.0, 1.0)
 
 
@@ -846,9 +830,3 @@ def sample_f_batch(params, wo, u, out):
         r = sample_f(bsdf, wo[i, 0], wo[i, 1], wo[i, 2], u[i, 0], u[i, 1], u[i, 2])
         for k in range(7):
             out[i, k] = r[k]
-
-
-@njit(**KERNEL)
-def ggx_d_batch(alpha, cos_h, out):
-    for i in range(cos_h.shape[0]):
-        out[i] = ggx_d(alpha, cos_h[i])

@@ -19,13 +19,19 @@ from __future__ import annotations
 import logging
 import math
 import time
+from typing import NamedTuple
 
 import numpy as np
 
+from .. import _jit
 from ..errors import RenderError
+from ..geometry.bvh import build_bvh
 from ..geometry.scene import Camera, Scene
-from ..imaging.film import Film, FilmSums, resolve_film
+from ..imaging.film import Film, FilmSums, resolve_film, tile_relative_error
+from ..imaging.film_kernels import mean_sampled_luminance
 from ..settings import RenderSettings
+from . import layout_kernels as L
+from . import path_kernels
 from .camera import choose_camera, pack_camera
 from .lights import build_lights, has_lights
 from .materials import pack_materials
@@ -35,6 +41,65 @@ log = logging.getLogger(__name__)
 #: Pixel reconstruction filter: a tent of this radius (pixels), importance-sampled (each
 #: sample has weight 1 and lands in one pixel, so pixels stay independent).
 FILTER_RADIUS_PX = 1.0
+
+
+class PackedScene(NamedTuple):
+    """A scene's arrays as every ray kernel takes them (contiguous, kernel dtypes).
+
+    ``mesh`` order is the kernels' argument order: positions, normals, uvs, tangents, colours
+    (float32), triangles, tri_material (int32); then the material table
+    (``layout_kernels`` ``MAT_*`` columns) and the texture atlas (pixels, table).
+    """
+
+    positions: np.ndarray
+    normals: np.ndarray
+    uvs: np.ndarray
+    tangents: np.ndarray
+    colours: np.ndarray
+    triangles: np.ndarray
+    tri_material: np.ndarray
+    mat_table: np.ndarray
+    tex_pixels: np.ndarray
+    tex_table: np.ndarray
+    eps: float
+
+    @property
+    def has_alpha(self) -> bool:
+        """Some material is not OPAQUE (MASK or BLEND): rays must look at alpha."""
+        return bool(np.any(self.mat_table[:, L.MAT_ALPHA_MODE] != L.ALPHA_OPAQUE))
+
+    @property
+    def has_transmission(self) -> bool:
+        """Some material transmits (KHR_materials_transmission > 0)."""
+        return bool(np.any(self.mat_table[:, L.MAT_TRANSMISSION] > 0.0))
+
+
+def pack_scene(scene: Scene) -> PackedScene:
+    """Pack ``scene`` once for the kernels: mesh arrays, material table, atlas and ray offset.
+
+    Raises
+    ------
+    RenderError
+        Bad material values, or a triangle naming a material that does not exist.
+    """
+    mat_table, atlas = pack_materials(scene)
+    n_mat = mat_table.shape[0]
+    if scene.n_triangles and (scene.tri_material.min() < 0 or scene.tri_material.max() >= n_mat):
+        raise RenderError(f"{scene.source}: a triangle refers to a material that does not exist ({n_mat} materials)")
+    c = np.ascontiguousarray
+    return PackedScene(
+        positions=c(scene.positions, dtype=np.float32),
+        normals=c(scene.normals, dtype=np.float32),
+        uvs=c(scene.uvs, dtype=np.float32),
+        tangents=c(scene.tangents, dtype=np.float32),
+        colours=c(scene.colours, dtype=np.float32),
+        triangles=c(scene.triangles, dtype=np.int32),
+        tri_material=c(scene.tri_material, dtype=np.int32),
+        mat_table=mat_table,
+        tex_pixels=c(atlas.pixels, dtype=np.float32),
+        tex_table=c(atlas.table, dtype=np.int32),
+        eps=ray_epsilon(scene),
+    )
 
 
 def _env_arrays(env):
@@ -90,9 +155,6 @@ def _still_noisy(sums, active: np.ndarray, settings: RenderSettings) -> np.ndarr
     The test uses only the film sums (thread-invariant), so the stopping pattern, and with it
     the image, is the same on any thread count.  A stopped tile never restarts.
     """
-    from ..imaging.film import tile_relative_error
-    from ..imaging.film_kernels import mean_sampled_luminance
-
     h, w = active.shape
     tile = settings.noise_tile_px
     floor = max(settings.noise_floor * mean_sampled_luminance(sums.rgb, sums.n_pixel), 1e-12)
@@ -170,10 +232,6 @@ def render(
     RenderError
         Unknown camera name, bad material values, bad settings.
     """
-    from .. import _jit
-    from ..geometry.bvh import build_bvh
-    from . import path_kernels
-
     if not isinstance(settings, RenderSettings):
         raise RenderError(f"render: settings must be a RenderSettings, got {type(settings).__name__}")
     _jit.set_threads(settings.threads)
@@ -190,26 +248,20 @@ def render(
         focus_distance_m=settings.focus_distance_m,
         focus_point=0.5 * (lo + hi),
     )
-    mat_table, atlas = pack_materials(scene)
-    n_mat = mat_table.shape[0]
-    if scene.n_triangles and (scene.tri_material.min() < 0 or scene.tri_material.max() >= n_mat):
-        raise RenderError(f"{scene.source}: a triangle refers to a material that does not exist ({n_mat} materials)")
-    lights = build_lights(scene, mat_table, env)
+    packed = pack_scene(scene)
+    lights = build_lights(scene, packed.mat_table, env)
     env_pixels, env_rows, env_cols, env_params, has_env = _env_arrays(env)
     if bvh is None:
         bvh = build_bvh(scene.positions, scene.triangles)
-    has_alpha = bool(np.any(mat_table[:, 10] != 0))
-    eps = ray_epsilon(scene)
+    has_alpha = packed.has_alpha
     sums = FilmSums.zeros(width, height)
-    positions = np.ascontiguousarray(scene.positions, dtype=np.float32)
-    normals = np.ascontiguousarray(scene.normals, dtype=np.float32)
-    uvs = np.ascontiguousarray(scene.uvs, dtype=np.float32)
-    tangents = np.ascontiguousarray(scene.tangents, dtype=np.float32)
-    colours = np.ascontiguousarray(scene.colours, dtype=np.float32)
-    triangles = np.ascontiguousarray(scene.triangles, dtype=np.int32)
-    tri_material = np.ascontiguousarray(scene.tri_material, dtype=np.int32)
     cone_spread, cone_base = ray_cone(cam, settings.spp)
-    fopts = np.array([eps, FILTER_RADIUS_PX, cone_spread, cone_base, float(see_through_radiance)], np.float64)
+    fopts = np.zeros(L.N_FOPTS, np.float64)
+    fopts[L.FOPT_EPS] = packed.eps
+    fopts[L.FOPT_FILTER_RADIUS] = FILTER_RADIUS_PX
+    fopts[L.FOPT_CONE_SPREAD] = cone_spread
+    fopts[L.FOPT_CONE_BASE] = cone_base
+    fopts[L.FOPT_SEE_RADIANCE] = float(see_through_radiance)
     total = settings.spp
     adaptive = settings.noise_target is not None and total > settings.adaptive_min_spp
     if sample_mask is None:
@@ -233,16 +285,21 @@ def render(
             # waves of about 1/4 of the count so far (2 .. wave_spp): a tile overshoots its
             # target by at most ~25 % of its samples
             end = min(total, done + max(2, min(settings.wave_spp, done // 4)))
-        opts = np.array(
-            [width, height, done, end, settings.seed, settings.max_depth,
-             1 if settings.mode == "baseline" else 0, 1 if has_env else 0, 1 if has_alpha else 0,
-             -1 if see_through_material is None else int(see_through_material)],
-            np.int64,
-        )
+        opts = np.zeros(L.N_OPTS, np.int64)
+        opts[L.OPT_WIDTH] = width
+        opts[L.OPT_HEIGHT] = height
+        opts[L.OPT_FIRST_SAMPLE] = done
+        opts[L.OPT_END_SAMPLE] = end
+        opts[L.OPT_SEED] = settings.seed
+        opts[L.OPT_MAX_DEPTH] = settings.max_depth
+        opts[L.OPT_MODE] = L.MODE_BASELINE if settings.mode == "baseline" else L.MODE_FULL
+        opts[L.OPT_HAS_ENV] = 1 if has_env else 0
+        opts[L.OPT_HAS_ALPHA] = 1 if has_alpha else 0
+        opts[L.OPT_SEE_MATERIAL] = -1 if see_through_material is None else int(see_through_material)
         path_kernels.render_rows(
-            positions, normals, uvs, tangents, colours, triangles, tri_material,
-            bvh.nodes_f, bvh.nodes_i, bvh.tris_f, bvh.tri_ids,
-            mat_table, atlas.pixels, atlas.table,
+            packed.positions, packed.normals, packed.uvs, packed.tangents, packed.colours, packed.triangles,
+            packed.tri_material, bvh.nodes_f, bvh.nodes_i, bvh.tris_f, bvh.tri_ids,
+            packed.mat_table, packed.tex_pixels, packed.tex_table,
             lights.punctual, lights.emit_tris, lights.emit_cdf, lights.tri_emit_prob, lights.sel_cdf,
             env_pixels, env_rows, env_cols, env_params,
             cam, opts, fopts,

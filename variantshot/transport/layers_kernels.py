@@ -23,6 +23,14 @@ from .._jit import KERNEL, njit
 import math
 
 from .bsdf_kernels import material_bsdf_values
+from .layout_kernels import (
+    MAT_ANISOTROPY, MAT_ANISOTROPY_ROTATION, MAT_BASE_B, MAT_BASE_G, MAT_BASE_R, MAT_CLEARCOAT,
+    MAT_CLEARCOAT_ROUGHNESS, MAT_EXT_TEXTURES, MAT_METALLIC, MAT_ROUGHNESS, MAT_SHEEN_B,
+    MAT_SHEEN_G, MAT_SHEEN_R, MAT_SHEEN_ROUGHNESS, MAT_SIGMA_A_B, MAT_SIGMA_A_G, MAT_SIGMA_A_R,
+    MAT_SPECULAR, MAT_SPECULAR_B, MAT_SPECULAR_G, MAT_SPECULAR_R, MAT_THICKNESS, MAT_TRANSMISSION,
+    SLOT_ANISOTROPY, SLOT_CLEARCOAT, SLOT_CLEARCOAT_ROUGHNESS, SLOT_NORMAL, SLOT_SHEEN_COLOUR,
+    SLOT_SHEEN_ROUGHNESS, SLOT_SPECULAR, SLOT_SPECULAR_COLOUR, SLOT_TEX_COORD, SLOT_TRANSMISSION,
+)
 from .sampling_kernels import onb_from_normal
 from .texture_kernels import sample_slot
 
@@ -37,48 +45,48 @@ def extension_values(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1):
     (KHR_materials_anisotropy: the default texel is (1, 0.5, 1)).  A texel direction of zero
     length keeps the untextured direction.
     """
-    tr = float(mat_table[mat, 48])
-    cc = float(mat_table[mat, 53])
-    ccr = float(mat_table[mat, 54])
-    shr = float(mat_table[mat, 55])
-    shg = float(mat_table[mat, 56])
-    shb = float(mat_table[mat, 57])
-    shro = float(mat_table[mat, 58])
-    sp = float(mat_table[mat, 15])
-    spr = float(mat_table[mat, 59])
-    spg = float(mat_table[mat, 60])
-    spb = float(mat_table[mat, 61])
-    an = float(mat_table[mat, 62])
+    tr = float(mat_table[mat, MAT_TRANSMISSION])
+    cc = float(mat_table[mat, MAT_CLEARCOAT])
+    ccr = float(mat_table[mat, MAT_CLEARCOAT_ROUGHNESS])
+    shr = float(mat_table[mat, MAT_SHEEN_R])
+    shg = float(mat_table[mat, MAT_SHEEN_G])
+    shb = float(mat_table[mat, MAT_SHEEN_B])
+    shro = float(mat_table[mat, MAT_SHEEN_ROUGHNESS])
+    sp = float(mat_table[mat, MAT_SPECULAR])
+    spr = float(mat_table[mat, MAT_SPECULAR_R])
+    spg = float(mat_table[mat, MAT_SPECULAR_G])
+    spb = float(mat_table[mat, MAT_SPECULAR_B])
+    an = float(mat_table[mat, MAT_ANISOTROPY])
     dx = 1.0
     dy = 0.0
     if an > 0.0:
-        rot = float(mat_table[mat, 63])
+        rot = float(mat_table[mat, MAT_ANISOTROPY_ROTATION])
         dx = math.cos(rot)
         dy = math.sin(rot)
-    if mat_table[mat, 145] > 0.5:
-        if tr > 0.0 and mat_table[mat, 64] >= 0.0:
-            tr *= sample_slot(mat_table, mat, 64, tex_pixels, tex_table, u0, v0, u1, v1)[0]
+    if mat_table[mat, MAT_EXT_TEXTURES] > 0.5:
+        if tr > 0.0 and mat_table[mat, SLOT_TRANSMISSION] >= 0.0:
+            tr *= sample_slot(mat_table, mat, SLOT_TRANSMISSION, tex_pixels, tex_table, u0, v0, u1, v1)[0]
         if cc > 0.0:
-            if mat_table[mat, 80] >= 0.0:
-                cc *= sample_slot(mat_table, mat, 80, tex_pixels, tex_table, u0, v0, u1, v1)[0]
-            if mat_table[mat, 88] >= 0.0:
-                ccr *= sample_slot(mat_table, mat, 88, tex_pixels, tex_table, u0, v0, u1, v1)[1]
-        if mat_table[mat, 104] >= 0.0:
-            t = sample_slot(mat_table, mat, 104, tex_pixels, tex_table, u0, v0, u1, v1)
+            if mat_table[mat, SLOT_CLEARCOAT] >= 0.0:
+                cc *= sample_slot(mat_table, mat, SLOT_CLEARCOAT, tex_pixels, tex_table, u0, v0, u1, v1)[0]
+            if mat_table[mat, SLOT_CLEARCOAT_ROUGHNESS] >= 0.0:
+                ccr *= sample_slot(mat_table, mat, SLOT_CLEARCOAT_ROUGHNESS, tex_pixels, tex_table, u0, v0, u1, v1)[1]
+        if mat_table[mat, SLOT_SHEEN_COLOUR] >= 0.0:
+            t = sample_slot(mat_table, mat, SLOT_SHEEN_COLOUR, tex_pixels, tex_table, u0, v0, u1, v1)
             shr *= t[0]
             shg *= t[1]
             shb *= t[2]
-        if mat_table[mat, 112] >= 0.0:
-            shro *= sample_slot(mat_table, mat, 112, tex_pixels, tex_table, u0, v0, u1, v1)[3]
-        if mat_table[mat, 120] >= 0.0:
-            sp *= sample_slot(mat_table, mat, 120, tex_pixels, tex_table, u0, v0, u1, v1)[3]
-        if mat_table[mat, 128] >= 0.0:
-            t = sample_slot(mat_table, mat, 128, tex_pixels, tex_table, u0, v0, u1, v1)
+        if mat_table[mat, SLOT_SHEEN_ROUGHNESS] >= 0.0:
+            shro *= sample_slot(mat_table, mat, SLOT_SHEEN_ROUGHNESS, tex_pixels, tex_table, u0, v0, u1, v1)[3]
+        if mat_table[mat, SLOT_SPECULAR] >= 0.0:
+            sp *= sample_slot(mat_table, mat, SLOT_SPECULAR, tex_pixels, tex_table, u0, v0, u1, v1)[3]
+        if mat_table[mat, SLOT_SPECULAR_COLOUR] >= 0.0:
+            t = sample_slot(mat_table, mat, SLOT_SPECULAR_COLOUR, tex_pixels, tex_table, u0, v0, u1, v1)
             spr *= t[0]
             spg *= t[1]
             spb *= t[2]
-        if an > 0.0 and mat_table[mat, 136] >= 0.0:
-            t = sample_slot(mat_table, mat, 136, tex_pixels, tex_table, u0, v0, u1, v1)
+        if an > 0.0 and mat_table[mat, SLOT_ANISOTROPY] >= 0.0:
+            t = sample_slot(mat_table, mat, SLOT_ANISOTROPY, tex_pixels, tex_table, u0, v0, u1, v1)
             an *= t[2]
             x = 2.0 * t[0] - 1.0
             y = 2.0 * t[1] - 1.0
@@ -96,11 +104,11 @@ def extension_values(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1):
 @njit(**KERNEL)
 def volume_attenuation(mat_table, mat, distance):
     """(T_r, T_g, T_b) = exp(-sigma_a distance) for material ``mat``; (1, 1, 1) without a volume."""
-    if mat_table[mat, 49] <= 0.0 or distance <= 0.0:
+    if mat_table[mat, MAT_THICKNESS] <= 0.0 or distance <= 0.0:
         return 1.0, 1.0, 1.0
-    sr = float(mat_table[mat, 50])
-    sg = float(mat_table[mat, 51])
-    sb = float(mat_table[mat, 52])
+    sr = float(mat_table[mat, MAT_SIGMA_A_R])
+    sg = float(mat_table[mat, MAT_SIGMA_A_G])
+    sb = float(mat_table[mat, MAT_SIGMA_A_B])
     if sr <= 0.0 and sg <= 0.0 and sb <= 0.0:
         return 1.0, 1.0, 1.0
     return math.exp(-sr * distance), math.exp(-sg * distance), math.exp(-sb * distance)
@@ -170,7 +178,7 @@ def anisotropy_frame(positions, uvs, tangents, triangles, tri, b1, b2, mat_table
     set; without a tangent, the frame of ``onb_from_normal``.
     """
     ok, tx, ty, tz, bx, by, bz = tangent_frame(positions, uvs, tangents, triangles, tri, b1, b2,
-                                               int(mat_table[mat, 41]), nx, ny, nz)
+                                               int(mat_table[mat, SLOT_NORMAL + SLOT_TEX_COORD]), nx, ny, nz)
     if not ok:
         return onb_from_normal(nx, ny, nz)
     ax = c * tx + s * bx
@@ -185,7 +193,7 @@ def coat_emission_scale(mat_table, mat, cos_n):
     """1 - clearcoat Fc(cos_n): emission seen through a clearcoat (KHR_materials_clearcoat README,
     Fc Schlick with f0 = 0.04); ``cos_n`` = |geometric normal . direction| (the same on both
     ends of a light path, so light sampling and BSDF hits agree); 1 without a coat."""
-    cc = float(mat_table[mat, 53])
+    cc = float(mat_table[mat, MAT_CLEARCOAT])
     if cc <= 0.0:
         return 1.0
     c = min(max(cos_n, 0.0), 1.0)
@@ -201,8 +209,8 @@ def resolve_textured_batch(mat_table, mat, tex_pixels, tex_table, uv0, uv1, ente
     """
     for i in range(uv0.shape[0]):
         e = extension_values(mat_table, mat, tex_pixels, tex_table, uv0[i, 0], uv0[i, 1], uv1[i, 0], uv1[i, 1])
-        b = material_bsdf_values(mat_table, mat, float(mat_table[mat, 1]), float(mat_table[mat, 2]),
-                                 float(mat_table[mat, 3]), float(mat_table[mat, 5]), float(mat_table[mat, 6]),
+        b = material_bsdf_values(mat_table, mat, float(mat_table[mat, MAT_BASE_R]), float(mat_table[mat, MAT_BASE_G]),
+                                 float(mat_table[mat, MAT_BASE_B]), float(mat_table[mat, MAT_METALLIC]), float(mat_table[mat, MAT_ROUGHNESS]),
                                  entering, e[0], e[1], e[2], e[3], e[4], e[5], e[6], e[7], e[8], e[9], e[10],
                                  e[11], 0.0, 0.0, 1.0)
         for k in range(len(b)):

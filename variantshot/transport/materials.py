@@ -1,8 +1,8 @@
 """Materials: glTF metallic-roughness materials packed into the kernels' float32 table.
 
-The column layout is documented in ``bsdf_kernels`` (one row per material, ``N_COLUMNS`` = 152
-columns: 0-63 factors and the core texture slots, 64-143 the KHR extensions' texture slots,
-144-145 their scale and flag).  Interpreted here:
+The column layout is named in ``layout_kernels`` (``MAT_*`` and ``SLOT_*``; one row per material,
+``N_COLUMNS`` = 152 columns: 0-63 factors and the core texture slots, 64-143 the KHR extensions'
+texture slots, 144-145 their scale and flag) and documented in ``bsdf_kernels``.  Interpreted here:
 
 * pbrMetallicRoughness factors and textures, emissive factor and texture,
   ``KHR_materials_emissive_strength`` (multiplies the emission) and ``KHR_materials_ior``
@@ -43,6 +43,8 @@ import numpy as np
 
 from ..errors import RenderError
 from ..geometry.scene import Material, Scene, TextureRef, TextureTransform
+from . import layout_kernels as L  # plain integers: no numba import
+from .layout_kernels import N_COLUMNS
 from .textures import AtlasBuilder, TextureAtlas, transform_matrix
 
 #: glTF extensions the path tracer interprets (the KHR_materials_* ones with their factors and
@@ -54,44 +56,27 @@ SUPPORTED_EXTENSIONS = frozenset(
      "KHR_materials_sheen", "KHR_materials_anisotropy"}
 )
 
-N_COLUMNS = 152
-ALPHA_MODES = {"OPAQUE": 0, "MASK": 1, "BLEND": 2}
-SLOT_BASE_COLOUR = 16
-SLOT_METALLIC_ROUGHNESS = 24
-SLOT_EMISSIVE = 32
-SLOT_NORMAL = 40
-SLOT_TRANSMISSION = 64
-SLOT_THICKNESS = 72
-SLOT_CLEARCOAT = 80
-SLOT_CLEARCOAT_ROUGHNESS = 88
-SLOT_CLEARCOAT_NORMAL = 96
-SLOT_SHEEN_COLOUR = 104
-SLOT_SHEEN_ROUGHNESS = 112
-SLOT_SPECULAR = 120
-SLOT_SPECULAR_COLOUR = 128
-SLOT_ANISOTROPY = 136
-COL_CLEARCOAT_NORMAL_SCALE = 144
-COL_EXT_TEXTURES = 145  # 1.0 when any sampled extension slot is present (the kernel skips them all else)
+ALPHA_MODES = {"OPAQUE": L.ALPHA_OPAQUE, "MASK": L.ALPHA_MASK, "BLEND": L.ALPHA_BLEND}
 
 #: (extension, textureInfo key, slot column, sRGB-decoded, sampled by the path kernel)
 EXTENSION_SLOTS = (
-    ("KHR_materials_transmission", "transmissionTexture", SLOT_TRANSMISSION, False, True),
-    ("KHR_materials_volume", "thicknessTexture", SLOT_THICKNESS, False, False),
-    ("KHR_materials_clearcoat", "clearcoatTexture", SLOT_CLEARCOAT, False, True),
-    ("KHR_materials_clearcoat", "clearcoatRoughnessTexture", SLOT_CLEARCOAT_ROUGHNESS, False, True),
-    ("KHR_materials_clearcoat", "clearcoatNormalTexture", SLOT_CLEARCOAT_NORMAL, False, True),
-    ("KHR_materials_sheen", "sheenColorTexture", SLOT_SHEEN_COLOUR, True, True),
-    ("KHR_materials_sheen", "sheenRoughnessTexture", SLOT_SHEEN_ROUGHNESS, False, True),
-    ("KHR_materials_specular", "specularTexture", SLOT_SPECULAR, False, True),
-    ("KHR_materials_specular", "specularColorTexture", SLOT_SPECULAR_COLOUR, True, True),
-    ("KHR_materials_anisotropy", "anisotropyTexture", SLOT_ANISOTROPY, False, True),
+    ("KHR_materials_transmission", "transmissionTexture", L.SLOT_TRANSMISSION, False, True),
+    ("KHR_materials_volume", "thicknessTexture", L.SLOT_THICKNESS, False, False),
+    ("KHR_materials_clearcoat", "clearcoatTexture", L.SLOT_CLEARCOAT, False, True),
+    ("KHR_materials_clearcoat", "clearcoatRoughnessTexture", L.SLOT_CLEARCOAT_ROUGHNESS, False, True),
+    ("KHR_materials_clearcoat", "clearcoatNormalTexture", L.SLOT_CLEARCOAT_NORMAL, False, True),
+    ("KHR_materials_sheen", "sheenColorTexture", L.SLOT_SHEEN_COLOUR, True, True),
+    ("KHR_materials_sheen", "sheenRoughnessTexture", L.SLOT_SHEEN_ROUGHNESS, False, True),
+    ("KHR_materials_specular", "specularTexture", L.SLOT_SPECULAR, False, True),
+    ("KHR_materials_specular", "specularColorTexture", L.SLOT_SPECULAR_COLOUR, True, True),
+    ("KHR_materials_anisotropy", "anisotropyTexture", L.SLOT_ANISOTROPY, False, True),
 )
 
 
 def _slot(row: np.ndarray, col: int, builder: AtlasBuilder, ref, srgb: bool) -> None:
     row[col] = builder.entry(ref, srgb)
-    row[col + 1] = 0 if ref is None else ref.tex_coord
-    row[col + 2 : col + 8] = transform_matrix(ref)
+    row[col + L.SLOT_TEX_COORD] = 0 if ref is None else ref.tex_coord
+    row[col + L.SLOT_M00 : col + L.SLOT_WIDTH] = transform_matrix(ref)
 
 
 def material_ior(material: Material) -> float:
@@ -206,67 +191,71 @@ def pack_extension_textures(material: Material, row: np.ndarray, builder: AtlasB
         _slot(row, col, builder, ref, srgb)
         any_sampled |= ref is not None and sampled
         if key == "clearcoatNormalTexture":
-            row[COL_CLEARCOAT_NORMAL_SCALE] = 1.0 if ref is None else ref.scale
-    row[COL_EXT_TEXTURES] = 1.0 if any_sampled else 0.0
+            row[L.MAT_CLEARCOAT_NORMAL_SCALE] = 1.0 if ref is None else ref.scale
+    row[L.MAT_EXT_TEXTURES] = 1.0 if any_sampled else 0.0
 
 
 def pack_extensions(material: Material, row: np.ndarray, where: str) -> None:
     """Columns 48-63 of a material row (layout in ``bsdf_kernels``)."""
     tr = _ext(material, "KHR_materials_transmission")
-    row[48] = _number(tr, "transmissionFactor", 0.0, where, "KHR_materials_transmission", 0.0, 1.0)
+    row[L.MAT_TRANSMISSION] = _number(tr, "transmissionFactor", 0.0, where, "KHR_materials_transmission", 0.0, 1.0)
     vol = _ext(material, "KHR_materials_volume")
-    row[49] = _number(vol, "thicknessFactor", 0.0, where, "KHR_materials_volume")
+    row[L.MAT_THICKNESS] = _number(vol, "thicknessFactor", 0.0, where, "KHR_materials_volume")
     dist = _number(vol, "attenuationDistance", math.inf, where, "KHR_materials_volume", 0.0)
     if dist <= 0.0:
         raise RenderError(f"{where}: KHR_materials_volume attenuationDistance must be > 0, got {dist!r}")
     att = _colour(vol, "attenuationColor", (1.0, 1.0, 1.0), where, "KHR_materials_volume")
-    if row[49] > 0 and math.isfinite(dist):
+    if row[L.MAT_THICKNESS] > 0 and math.isfinite(dist):
         # KHR_materials_volume: sigma_t = -ln(c) / d; c = 0 absorbs everything (a large sigma)
-        row[50:53] = -np.log(np.clip(att, 1e-30, 1.0)) / dist
+        row[L.MAT_SIGMA_A_R : L.MAT_SIGMA_A_B + 1] = -np.log(np.clip(att, 1e-30, 1.0)) / dist
     cc = _ext(material, "KHR_materials_clearcoat")
-    row[53] = _number(cc, "clearcoatFactor", 0.0, where, "KHR_materials_clearcoat", 0.0, 1.0)
-    row[54] = _number(cc, "clearcoatRoughnessFactor", 0.0, where, "KHR_materials_clearcoat", 0.0, 1.0)
+    row[L.MAT_CLEARCOAT] = _number(cc, "clearcoatFactor", 0.0, where, "KHR_materials_clearcoat", 0.0, 1.0)
+    row[L.MAT_CLEARCOAT_ROUGHNESS] = _number(cc, "clearcoatRoughnessFactor", 0.0, where, "KHR_materials_clearcoat",
+                                             0.0, 1.0)
     sh = _ext(material, "KHR_materials_sheen")
-    row[55:58] = np.clip(_colour(sh, "sheenColorFactor", (0.0, 0.0, 0.0), where, "KHR_materials_sheen"), 0, 1)
-    row[58] = _number(sh, "sheenRoughnessFactor", 0.0, where, "KHR_materials_sheen", 0.0, 1.0)
+    sheen = _colour(sh, "sheenColorFactor", (0.0, 0.0, 0.0), where, "KHR_materials_sheen")
+    row[L.MAT_SHEEN_R : L.MAT_SHEEN_B + 1] = np.clip(sheen, 0, 1)
+    row[L.MAT_SHEEN_ROUGHNESS] = _number(sh, "sheenRoughnessFactor", 0.0, where, "KHR_materials_sheen", 0.0, 1.0)
     sp = _ext(material, "KHR_materials_specular")
-    row[59:62] = _colour(sp, "specularColorFactor", (1.0, 1.0, 1.0), where, "KHR_materials_specular")
+    row[L.MAT_SPECULAR_R : L.MAT_SPECULAR_B + 1] = _colour(sp, "specularColorFactor", (1.0, 1.0, 1.0), where,
+                                                           "KHR_materials_specular")
     an = _ext(material, "KHR_materials_anisotropy")
-    row[62] = _number(an, "anisotropyStrength", 0.0, where, "KHR_materials_anisotropy", 0.0, 1.0)
-    row[63] = _number(an, "anisotropyRotation", 0.0, where, "KHR_materials_anisotropy", -math.inf)
+    row[L.MAT_ANISOTROPY] = _number(an, "anisotropyStrength", 0.0, where, "KHR_materials_anisotropy", 0.0, 1.0)
+    row[L.MAT_ANISOTROPY_ROTATION] = _number(an, "anisotropyRotation", 0.0, where, "KHR_materials_anisotropy",
+                                             -math.inf)
 
 
 def pack_material(material: Material, builder: AtlasBuilder, where: str) -> np.ndarray:
     """One ``(N_COLUMNS,) float32`` row of the material table."""
     row = np.zeros(N_COLUMNS, np.float32)
-    row[0] = 0  # MATERIAL_METAL_ROUGH
+    row[L.MAT_KIND] = L.MATERIAL_METAL_ROUGH
     bc = tuple(material.base_colour_factor)
     if len(bc) != 4:
         raise RenderError(f"{where}: baseColorFactor needs 4 numbers, got {bc!r}")
-    row[1:5] = bc
-    row[5] = material.metallic_factor
-    row[6] = material.roughness_factor
+    row[L.MAT_BASE_R : L.MAT_BASE_A + 1] = bc
+    row[L.MAT_METALLIC] = material.metallic_factor
+    row[L.MAT_ROUGHNESS] = material.roughness_factor
     em = np.asarray(material.emissive_factor, np.float64) * float(material.emissive_strength)
     if em.shape != (3,) or not np.all(np.isfinite(em)) or np.any(em < 0):
         raise RenderError(f"{where}: emissive factor x strength must be 3 finite numbers >= 0, got {em!r}")
-    row[7:10] = em
+    row[L.MAT_EMISSIVE_R : L.MAT_EMISSIVE_B + 1] = em
     if material.alpha_mode not in ALPHA_MODES:
         raise RenderError(
             f"{where}: alphaMode {material.alpha_mode!r} is not accepted ({', '.join(ALPHA_MODES)})"
         )
-    row[10] = ALPHA_MODES[material.alpha_mode]
-    row[11] = material.alpha_cutoff
-    row[12] = 1.0 if material.double_sided else 0.0
+    row[L.MAT_ALPHA_MODE] = ALPHA_MODES[material.alpha_mode]
+    row[L.MAT_ALPHA_CUTOFF] = material.alpha_cutoff
+    row[L.MAT_DOUBLE_SIDED] = 1.0 if material.double_sided else 0.0
     ior = material_ior(material)
     if not ior >= 1.0:
         raise RenderError(f"{where}: KHR_materials_ior ior {ior!r} is not accepted (a number >= 1)")
-    row[13] = ior
-    row[14] = 1.0 if material.normal_texture is None else material.normal_texture.scale
-    row[15] = material_specular(material)
-    _slot(row, SLOT_BASE_COLOUR, builder, material.base_colour_texture, True)
-    _slot(row, SLOT_METALLIC_ROUGHNESS, builder, material.metallic_roughness_texture, False)
-    _slot(row, SLOT_EMISSIVE, builder, material.emissive_texture, True)
-    _slot(row, SLOT_NORMAL, builder, material.normal_texture, False)
+    row[L.MAT_IOR] = ior
+    row[L.MAT_NORMAL_SCALE] = 1.0 if material.normal_texture is None else material.normal_texture.scale
+    row[L.MAT_SPECULAR] = material_specular(material)
+    _slot(row, L.SLOT_BASE_COLOUR, builder, material.base_colour_texture, True)
+    _slot(row, L.SLOT_METALLIC_ROUGHNESS, builder, material.metallic_roughness_texture, False)
+    _slot(row, L.SLOT_EMISSIVE, builder, material.emissive_texture, True)
+    _slot(row, L.SLOT_NORMAL, builder, material.normal_texture, False)
     pack_extensions(material, row, where)
     pack_extension_textures(material, row, builder, where)
     return row
@@ -288,36 +277,24 @@ def resolve_textured(table: np.ndarray, atlas: TextureAtlas, mat: int, uv0, uv1=
     """The resolved BSDF records ``(N, N_BSDF + 2) float64`` of material ``mat`` of a packed table with
     its extension textures read at UV points ``uv0`` (and ``uv1``, default the same) ``(N, 2)``;
     the last two columns are the anisotropy direction (tests; base values are the factors)."""
-    from . import bsdf_kernels, layers_kernels
+    from . import layers_kernels  # numba loads only when a kernel is used (the catalog imports this module)
 
     uv0 = np.ascontiguousarray(uv0, dtype=np.float64).reshape(-1, 2)
     uv1 = uv0 if uv1 is None else np.ascontiguousarray(uv1, dtype=np.float64).reshape(-1, 2)
-    out = np.zeros((uv0.shape[0], bsdf_kernels.N_BSDF + 2), np.float64)
+    out = np.zeros((uv0.shape[0], L.N_BSDF + 2), np.float64)
     layers_kernels.resolve_textured_batch(np.ascontiguousarray(table, dtype=np.float32), int(mat), atlas.pixels,
                                           atlas.table, uv0, uv1, bool(entering), out)
-    return out
-
-
-def eval_brdf(material_row, wo, wi, base_colour=None, metallic=None, roughness=None) -> np.ndarray:
-    """f(wo, wi) ``(N, 3) float64`` of a packed material (factors only), local frame n = +z (tests)."""
-    from . import bsdf_kernels
-
-    params = resolve_params(material_row, base_colour, metallic, roughness)
-    wo = np.ascontiguousarray(wo, dtype=np.float64).reshape(-1, 3)
-    wi = np.ascontiguousarray(wi, dtype=np.float64).reshape(-1, 3)
-    out = np.zeros((wo.shape[0], 3), np.float64)
-    bsdf_kernels.eval_f_batch(params, wo, wi, out)
     return out
 
 
 def resolve_params(material_row, base_colour=None, metallic=None, roughness=None, entering=True) -> np.ndarray:
     """The resolved ``(N_BSDF,) float64`` BSDF record of ``bsdf_kernels`` for a packed material row."""
     row = np.asarray(material_row, np.float64)
-    bc = row[1:4] if base_colour is None else np.asarray(base_colour, np.float64)
-    m = row[5] if metallic is None else float(metallic)
-    r = row[6] if roughness is None else float(roughness)
-    from .bsdf_kernels import material_bsdf
+    bc = row[L.MAT_BASE_R : L.MAT_BASE_B + 1] if base_colour is None else np.asarray(base_colour, np.float64)
+    m = row[L.MAT_METALLIC] if metallic is None else float(metallic)
+    r = row[L.MAT_ROUGHNESS] if roughness is None else float(roughness)
+    from . import bsdf_kernels  # numba loads only when a kernel is used (the catalog imports this module)
 
     table = np.ascontiguousarray(row.reshape(1, -1), dtype=np.float32)
-    return np.array(material_bsdf(table, 0, float(bc[0]), float(bc[1]), float(bc[2]), float(m), float(r),
+    return np.array(bsdf_kernels.material_bsdf(table, 0, float(bc[0]), float(bc[1]), float(bc[2]), float(m), float(r),
                                   bool(entering)), np.float64)

@@ -20,7 +20,7 @@ At every surface vertex the path adds
 
 Geometry conventions: the geometric normal is turned towards the incoming ray; the shading
 normal (interpolated vertex normals) is turned to the same side.  Rays leave a surface from
-a point offset along the geometric normal by ``eps`` (scale-aware, ``fopts[0]``).  Back faces
+a point offset along the geometric normal by ``eps`` (scale-aware, ``fopts[FOPT_EPS]``).  Back faces
 of single-sided materials are shaded like fronts but do not emit (see ``materials.py``).
 
 Alpha: MASK passes rays where alpha < cutoff; BLEND passes a ray with probability 1 - alpha
@@ -40,10 +40,10 @@ base width (world units; orthographic cameras), 4 see-through background radianc
 and metallic-roughness lookups on the path's surfaces are filtered for the cone's footprint
 (``texture_kernels``), the other slots read level 0.
 
-See-through mode (``opts[9]`` = the studio floor's material, set by the batch for the white and
+See-through mode (``opts[OPT_SEE_MATERIAL]`` = the studio floor's material, set by the batch for the white and
 transparent backgrounds): a camera path that reaches that material after only BSDF
 transmissions (at least one) and alpha pass-throughs is not shaded there; it ends, adds its
-throughput x ``fopts[4]`` (the scene-linear value the exposure maps to paper white) to the
+throughput x ``fopts[FOPT_SEE_RADIANCE]`` (the scene-linear value the exposure maps to paper white) to the
 radiance -- the white background seen through the glass, so that adaptive sampling, the
 denoiser and QA see the pixel as it will be composited -- and returns the throughput as the
 "see-through" RGB, with which the compositor puts its own background value there instead
@@ -70,6 +70,15 @@ from .sampling_kernels import (
     sobol_pair,
     sample_tent,
     uniform_from_state,
+)
+from .layout_kernels import (
+    ALPHA_MASK, ALPHA_OPAQUE, MODE_BASELINE,
+    FOPT_CONE_BASE, FOPT_CONE_SPREAD, FOPT_EPS, FOPT_FILTER_RADIUS, FOPT_SEE_RADIANCE,
+    MAT_ALPHA_CUTOFF, MAT_ALPHA_MODE, MAT_BASE_A, MAT_BASE_B, MAT_BASE_G, MAT_BASE_R,
+    MAT_CLEARCOAT_NORMAL_SCALE, MAT_DOUBLE_SIDED, MAT_EMISSIVE_B, MAT_EMISSIVE_G, MAT_EMISSIVE_R,
+    MAT_METALLIC, MAT_NORMAL_SCALE, MAT_ROUGHNESS, OPT_END_SAMPLE, OPT_FIRST_SAMPLE, OPT_HAS_ALPHA,
+    OPT_HAS_ENV, OPT_MAX_DEPTH, OPT_MODE, OPT_SEED, OPT_SEE_MATERIAL, OPT_WIDTH, SLOT_BASE_COLOUR,
+    SLOT_CLEARCOAT_NORMAL, SLOT_EMISSIVE, SLOT_METALLIC_ROUGHNESS, SLOT_NORMAL, SLOT_TEX_COORD,
 )
 from .layers_kernels import anisotropy_frame, coat_emission_scale, extension_values, tangent_frame, volume_attenuation
 from .texture_kernels import footprint_uv_widths, sample_slot, sample_slot_lod
@@ -103,19 +112,19 @@ def surface_attributes(positions, normals, uvs, colours, triangles, tri, b1, b2)
 @njit(**KERNEL)
 def surface_alpha(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1, ca):
     """glTF alpha: baseColorFactor.a x baseColorTexture.a x COLOR_0.a."""
-    a = sample_slot(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1)[3]
-    return float(mat_table[mat, 4]) * a * ca
+    a = sample_slot(mat_table, mat, SLOT_BASE_COLOUR, tex_pixels, tex_table, u0, v0, u1, v1)[3]
+    return float(mat_table[mat, MAT_BASE_A]) * a * ca
 
 
 @njit(**KERNEL)
 def emission(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1):
     """Emitted radiance (RGB): emissiveFactor x strength x emissiveTexture."""
-    er = float(mat_table[mat, 7])
-    eg = float(mat_table[mat, 8])
-    eb = float(mat_table[mat, 9])
+    er = float(mat_table[mat, MAT_EMISSIVE_R])
+    eg = float(mat_table[mat, MAT_EMISSIVE_G])
+    eb = float(mat_table[mat, MAT_EMISSIVE_B])
     if er <= 0.0 and eg <= 0.0 and eb <= 0.0:
         return 0.0, 0.0, 0.0
-    tr, tg, tb, ta = sample_slot(mat_table, mat, 32, tex_pixels, tex_table, u0, v0, u1, v1)
+    tr, tg, tb, ta = sample_slot(mat_table, mat, SLOT_EMISSIVE, tex_pixels, tex_table, u0, v0, u1, v1)
     return er * tr, eg * tg, eb * tb
 
 
@@ -125,7 +134,7 @@ def normal_mapped(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, m
     """Shading normal perturbed by the material's normalTexture (glTF 2.0 §3.9.3), see
     :func:`normal_mapped_slot` (slot 40, scale column 14)."""
     return normal_mapped_slot(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat, tex_pixels,
-                              tex_table, nx, ny, nz, u0, v0, u1, v1, 40, 14)
+                              tex_table, nx, ny, nz, u0, v0, u1, v1, SLOT_NORMAL, MAT_NORMAL_SCALE)
 
 
 @njit(**KERNEL)
@@ -147,7 +156,7 @@ def normal_mapped_slot(positions, uvs, tangents, triangles, tri, b1, b2, mat_tab
     my = (2.0 * tg - 1.0) * scale
     mz = 2.0 * tb - 1.0
     ok, tx, ty, tz, bx, by, bz = tangent_frame(positions, uvs, tangents, triangles, tri, b1, b2,
-                                               int(mat_table[mat, col + 1]), nx, ny, nz)
+                                               int(mat_table[mat, col + SLOT_TEX_COORD]), nx, ny, nz)
     if not ok:
         return nx, ny, nz
     rx = tx * mx + bx * my + nx * mz
@@ -175,13 +184,13 @@ def shadow_transmittance(nodes_f, nodes_i, tris_f, tri_ids, positions, normals, 
         if tri < 0:
             return trans
         mat = tri_material[tri]
-        mode = int(mat_table[mat, 10])
-        if mode == 0:
+        mode = int(mat_table[mat, MAT_ALPHA_MODE])
+        if mode == ALPHA_OPAQUE:
             return 0.0
         a = surface_attributes(positions, normals, uvs, colours, triangles, tri, b1, b2)
         alpha = surface_alpha(mat_table, mat, tex_pixels, tex_table, a[6], a[7], a[8], a[9], a[13])
-        if mode == 1:
-            if alpha >= mat_table[mat, 11]:
+        if mode == ALPHA_MASK:
+            if alpha >= mat_table[mat, MAT_ALPHA_CUTOFF]:
                 return 0.0
         else:
             trans *= max(0.0, 1.0 - alpha)
@@ -208,25 +217,25 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
 
     Returns (r, g, b, albedo r, g, b, normal x, y, z, coverage, depth, see-through r, g, b)
     where depth is -1 when the camera ray reached no surface and see-through is the throughput
-    of a path that reached the ``opts[9]`` material through transmissions only (0 otherwise).
+    of a path that reached the ``opts[OPT_SEE_MATERIAL]`` material through transmissions only (0 otherwise).
     """
-    max_depth = opts[5]
-    baseline = opts[6] == 1
-    has_env = opts[7] == 1
-    has_alpha = opts[8]
-    see_mat = opts[9]
-    eps = fopts[0]
-    radius = fopts[1]
-    cone_spread = fopts[2]  # ray cone (texture_kernels): width = base + spread x distance
-    cone_base = fopts[3]
+    max_depth = opts[OPT_MAX_DEPTH]
+    baseline = opts[OPT_MODE] == MODE_BASELINE
+    has_env = opts[OPT_HAS_ENV] == 1
+    has_alpha = opts[OPT_HAS_ALPHA]
+    see_mat = opts[OPT_SEE_MATERIAL]
+    eps = fopts[FOPT_EPS]
+    radius = fopts[FOPT_FILTER_RADIUS]
+    cone_spread = fopts[FOPT_CONE_SPREAD]  # ray cone (texture_kernels): width = base + spread x distance
+    cone_base = fopts[FOPT_CONE_BASE]
     sel_total = sel_cdf[sel_cdf.shape[0] - 1]
     p_env_sel = (sel_cdf[1] - sel_cdf[0]) / sel_total if sel_total > 0.0 else 0.0
     p_emit_sel = (sel_cdf[2] - sel_cdf[1]) / sel_total if sel_total > 0.0 else 0.0
 
     # dims 0-3 (filter, lens): Owen-scrambled Sobol' pairs (sampling_kernels)
-    pixel = px_y * opts[0] + px_x
-    uf0, uf1 = sobol_pair(pixel, sample_index, 0, opts[4])
-    ul0, ul1 = sobol_pair(pixel, sample_index, 1, opts[4])
+    pixel = px_y * opts[OPT_WIDTH] + px_x
+    uf0, uf1 = sobol_pair(pixel, sample_index, 0, opts[OPT_SEED])
+    ul0, ul1 = sobol_pair(pixel, sample_index, 1, opts[OPT_SEED])
     fx = px_x + 0.5 + sample_tent(uf0, radius)
     fy = px_y + 0.5 + sample_tent(uf1, radius)
     ox, oy, oz, dx, dy, dz = generate_ray(cam, fx, fy, ul0, ul1)
@@ -284,12 +293,12 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             beta_r *= va_r
             beta_g *= va_g
             beta_b *= va_b
-        alpha_mode = int(mat_table[mat, 10])
-        if alpha_mode != 0:
+        alpha_mode = int(mat_table[mat, MAT_ALPHA_MODE])
+        if alpha_mode != ALPHA_OPAQUE:
             alpha = surface_alpha(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1, ca)
             passing = False
-            if alpha_mode == 1:
-                passing = alpha < mat_table[mat, 11]
+            if alpha_mode == ALPHA_MASK:
+                passing = alpha < mat_table[mat, MAT_ALPHA_CUTOFF]
             else:
                 passing = uniform_from_state(state, (1 << 20) + 64 * depth + min(passes, 63)) >= alpha
             if passing and passes < 1024:
@@ -304,11 +313,11 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             see_r = beta_r
             see_g = beta_g
             see_b = beta_b
-            lr += beta_r * fopts[4]
-            lg += beta_g * fopts[4]
-            lb += beta_b * fopts[4]
+            lr += beta_r * fopts[FOPT_SEE_RADIANCE]
+            lg += beta_g * fopts[FOPT_SEE_RADIANCE]
+            lb += beta_b * fopts[FOPT_SEE_RADIANCE]
             break
-        double_sided = mat_table[mat, 12] > 0.5
+        double_sided = mat_table[mat, MAT_DOUBLE_SIDED] > 0.5
         # shading normal on the viewer's side of the geometric normal
         sl = math.sqrt(snx * snx + sny * sny + snz * snz)
         if sl > 0.0:
@@ -341,14 +350,14 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
             snz = ngz
         fw0 = 0.0
         fw1 = 0.0
-        if mat_table[mat, 16] >= 0.0 or mat_table[mat, 24] >= 0.0:
+        if mat_table[mat, SLOT_BASE_COLOUR] >= 0.0 or mat_table[mat, SLOT_METALLIC_ROUGHNESS] >= 0.0:
             fw0, fw1 = footprint_uv_widths(uvs, triangles, tri, area,
                                            cone_base + cone_spread * (path_t + seg_t + t),
                                            ngx * dx + ngy * dy + ngz * dz)
-        bt = sample_slot_lod(mat_table, mat, 16, tex_pixels, tex_table, u0, v0, u1, v1, fw0, fw1)
-        base_r = float(mat_table[mat, 1]) * bt[0] * cr
-        base_g = float(mat_table[mat, 2]) * bt[1] * cg
-        base_b = float(mat_table[mat, 3]) * bt[2] * cb
+        bt = sample_slot_lod(mat_table, mat, SLOT_BASE_COLOUR, tex_pixels, tex_table, u0, v0, u1, v1, fw0, fw1)
+        base_r = float(mat_table[mat, MAT_BASE_R]) * bt[0] * cr
+        base_g = float(mat_table[mat, MAT_BASE_G]) * bt[1] * cg
+        base_b = float(mat_table[mat, MAT_BASE_B]) * bt[2] * cb
         if depth == 0:
             alb_r = base_r
             alb_g = base_g
@@ -379,9 +388,9 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                 lb += beta_b * eb * w
         if depth + 1 >= max_depth:
             break
-        mr = sample_slot_lod(mat_table, mat, 24, tex_pixels, tex_table, u0, v0, u1, v1, fw0, fw1)
-        metallic = float(mat_table[mat, 5]) * mr[2]
-        roughness = float(mat_table[mat, 6]) * mr[1]
+        mr = sample_slot_lod(mat_table, mat, SLOT_METALLIC_ROUGHNESS, tex_pixels, tex_table, u0, v0, u1, v1, fw0, fw1)
+        metallic = float(mat_table[mat, MAT_METALLIC]) * mr[2]
+        roughness = float(mat_table[mat, MAT_ROUGHNESS]) * mr[1]
         (x_tr, x_cc, x_ccr, x_shr, x_shg, x_shb, x_shro, x_sp, x_spr, x_spg, x_spb, x_an, x_dx,
          x_dy) = extension_values(mat_table, mat, tex_pixels, tex_table, u0, v0, u1, v1)
         if x_an > 0.0:
@@ -395,9 +404,10 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         cnx = 0.0
         cny = 0.0
         cnz = 1.0
-        if x_cc > 0.0 and (mat_table[mat, 40] >= 0.0 or mat_table[mat, 96] >= 0.0):
+        if x_cc > 0.0 and (mat_table[mat, SLOT_NORMAL] >= 0.0 or mat_table[mat, SLOT_CLEARCOAT_NORMAL] >= 0.0):
             cwx, cwy, cwz = normal_mapped_slot(positions, uvs, tangents, triangles, tri, b1, b2, mat_table, mat,
-                                               tex_pixels, tex_table, n0x, n0y, n0z, u0, v0, u1, v1, 96, 144)
+                                               tex_pixels, tex_table, n0x, n0y, n0z, u0, v0, u1, v1, SLOT_CLEARCOAT_NORMAL,
+                                               MAT_CLEARCOAT_NORMAL_SCALE)
             if cwx * ngx + cwy * ngy + cwz * ngz < 0.0:
                 cwx = -cwx
                 cwy = -cwy
@@ -422,8 +432,8 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
         # the light point and the BSDF direction of the first vertex are stratified too
         # (Sobol' pairs 2 and 3); later vertices use the hashed dimensions
         if depth == 0:
-            ulp0, ulp1 = sobol_pair(pixel, sample_index, 2, opts[4])
-            ub0, ub1 = sobol_pair(pixel, sample_index, 3, opts[4])
+            ulp0, ulp1 = sobol_pair(pixel, sample_index, 2, opts[OPT_SEED])
+            ub0, ub1 = sobol_pair(pixel, sample_index, 3, opts[OPT_SEED])
         else:
             ulp0 = uniform_from_state(state, dim + 2)
             ulp1 = uniform_from_state(state, dim + 3)
@@ -466,20 +476,20 @@ def trace_sample(positions, normals, uvs, tangents, colours, triangles, tri_mate
                     wiy = wy / dist
                     wiz = wz / dist
                     cos_l = -(lnx * wix + lny * wiy + lnz * wiz)
-                    if cos_l > 0.0 or (mat_table[lmat, 12] > 0.5 and cos_l < 0.0):
+                    if cos_l > 0.0 or (mat_table[lmat, MAT_DOUBLE_SIDED] > 0.5 and cos_l < 0.0):
                         la = surface_attributes(positions, normals, uvs, colours, triangles, ltri, lb1, lb2)
                         li_r, li_g, li_b = emission(mat_table, lmat, tex_pixels, tex_table, la[6], la[7], la[8], la[9])
                         ce = coat_emission_scale(mat_table, lmat, abs(cos_l))
                         li_r *= ce
                         li_g *= ce
                         li_b *= ce
-                        lmode = int(mat_table[lmat, 10])
-                        if lmode != 0:
+                        lmode = int(mat_table[lmat, MAT_ALPHA_MODE])
+                        if lmode != ALPHA_OPAQUE:
                             # a masked-away point is not there; a blended one emits alpha x Le on average
                             la_alpha = surface_alpha(mat_table, lmat, tex_pixels, tex_table, la[6], la[7], la[8],
                                                      la[9], la[13])
-                            if lmode == 1:
-                                if la_alpha < mat_table[lmat, 11]:
+                            if lmode == ALPHA_MASK:
+                                if la_alpha < mat_table[lmat, MAT_ALPHA_CUTOFF]:
                                     la_alpha = 0.0
                                 else:
                                     la_alpha = 1.0
@@ -582,7 +592,7 @@ def render_rows(positions, normals, uvs, tangents, colours, triangles, tri_mater
                 cam, opts, fopts,
                 sum_rgb, sum_sq, sum_albedo, sum_normal, sum_alpha, sum_depth, n_depth, sum_see,
                 rows, active):
-    """Add samples ``opts[2] .. opts[3]-1`` of the active pixels to the film sums.
+    """Add samples ``opts[OPT_FIRST_SAMPLE] .. opts[OPT_END_SAMPLE]-1`` of the active pixels to the film sums.
 
     Sums are (H, W, 3) / (H, W) float64, updated in place.  ``rows`` (R,) int32 lists the
     image rows to render (each at most once, in any order: the caller shuffles them so the
@@ -590,10 +600,10 @@ def render_rows(positions, normals, uvs, tangents, colours, triangles, tri_mater
     take samples (adaptive sampling), 0 for converged ones.  Iteration ``i`` writes only row
     ``rows[i]``, samples in increasing order, so the result does not depend on the thread count.
     """
-    width = opts[0]
-    s0 = opts[2]
-    s1 = opts[3]
-    seed = opts[4]
+    width = opts[OPT_WIDTH]
+    s0 = opts[OPT_FIRST_SAMPLE]
+    s1 = opts[OPT_END_SAMPLE]
+    seed = opts[OPT_SEED]
     for i in prange(rows.shape[0]):
         y = rows[i]
         for x in range(width):

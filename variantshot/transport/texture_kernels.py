@@ -40,6 +40,19 @@ from .._jit import KERNEL, njit
 
 import math
 
+from .layout_kernels import SLOT_M00, SLOT_M01, SLOT_M02, SLOT_M10, SLOT_M11, SLOT_M12, SLOT_TEX_COORD
+
+# Columns of the atlas table ``tex_table`` (K, N_TEX) int32, one row per mip level (``textures.py``).
+TEX_OFFSET = 0  # first texel in ``tex_pixels``
+TEX_WIDTH = 1
+TEX_HEIGHT = 2
+TEX_WRAP_S = 3  # glTF sampler wrap codes
+TEX_WRAP_T = 4
+TEX_NEAREST = 5  # 1: nearest magnification
+TEX_LEVELS = 6  # mip levels from this row on
+TEX_MODE = 7  # minification mode bits (module docstring)
+N_TEX = 8
+
 
 @njit(**KERNEL)
 def wrap_index(i, n, mode):
@@ -72,11 +85,11 @@ def texel(tex_pixels, offset, width, x, y, c):
 @njit(**KERNEL)
 def sample_level(tex_pixels, tex_table, row, u, v, nearest):
     """RGBA of one level (table ``row``) at (u, v): bilinear, or nearest when ``nearest``."""
-    offset = tex_table[row, 0]
-    width = tex_table[row, 1]
-    height = tex_table[row, 2]
-    wrap_s = tex_table[row, 3]
-    wrap_t = tex_table[row, 4]
+    offset = tex_table[row, TEX_OFFSET]
+    width = tex_table[row, TEX_WIDTH]
+    height = tex_table[row, TEX_HEIGHT]
+    wrap_s = tex_table[row, TEX_WRAP_S]
+    wrap_t = tex_table[row, TEX_WRAP_T]
     x = u * width - 0.5
     y = v * height - 0.5
     if nearest:
@@ -122,9 +135,9 @@ def sample_texture_lod(tex_pixels, tex_table, entry, u, v, lod):
         u = 0.0
         v = 0.0
     if not lod > 0.0:  # magnification (NaN included)
-        return sample_level(tex_pixels, tex_table, entry, u, v, tex_table[entry, 5] == 1)
-    levels = tex_table[entry, 6]
-    mode = tex_table[entry, 7]
+        return sample_level(tex_pixels, tex_table, entry, u, v, tex_table[entry, TEX_NEAREST] == 1)
+    levels = tex_table[entry, TEX_LEVELS]
+    mode = tex_table[entry, TEX_MODE]
     nearest_texel = (mode & 1) == 1
     top = float(levels - 1)
     if lod > top:
@@ -155,14 +168,14 @@ def slot_uv(mat_table, mat, col, uv0u, uv0v, uv1u, uv1v):
     """Transformed (u', v') of the slot at ``col``: its texCoord set through its
     KHR_texture_transform matrix (m00 m01 m02 m10 m11 m12): u' = m00 u + m01 v + m02,
     v' = m10 u + m11 v + m12."""
-    if int(mat_table[mat, col + 1]) == 1:
+    if int(mat_table[mat, col + SLOT_TEX_COORD]) == 1:
         u = uv1u
         v = uv1v
     else:
         u = uv0u
         v = uv0v
-    tu = mat_table[mat, col + 2] * u + mat_table[mat, col + 3] * v + mat_table[mat, col + 4]
-    tv = mat_table[mat, col + 5] * u + mat_table[mat, col + 6] * v + mat_table[mat, col + 7]
+    tu = mat_table[mat, col + SLOT_M00] * u + mat_table[mat, col + SLOT_M01] * v + mat_table[mat, col + SLOT_M02]
+    tv = mat_table[mat, col + SLOT_M10] * u + mat_table[mat, col + SLOT_M11] * v + mat_table[mat, col + SLOT_M12]
     return tu, tv
 
 
@@ -186,11 +199,12 @@ def sample_slot_lod(mat_table, mat, col, tex_pixels, tex_table, uv0u, uv0v, uv1u
     if entry < 0:
         return 1.0, 1.0, 1.0, 1.0
     tu, tv = slot_uv(mat_table, mat, col, uv0u, uv0v, uv1u, uv1v)
-    fw = fw1 if int(mat_table[mat, col + 1]) == 1 else fw0
+    fw = fw1 if int(mat_table[mat, col + SLOT_TEX_COORD]) == 1 else fw0
     lod = 0.0
     if fw > 0.0:
-        det = abs(mat_table[mat, col + 2] * mat_table[mat, col + 6] - mat_table[mat, col + 3] * mat_table[mat, col + 5])
-        texels = fw * math.sqrt(float(tex_table[entry, 1]) * float(tex_table[entry, 2]) * det)
+        det = abs(mat_table[mat, col + SLOT_M00] * mat_table[mat, col + SLOT_M11]
+                  - mat_table[mat, col + SLOT_M01] * mat_table[mat, col + SLOT_M10])
+        texels = fw * math.sqrt(float(tex_table[entry, TEX_WIDTH]) * float(tex_table[entry, TEX_HEIGHT]) * det)
         if texels > 0.0:
             lod = math.log2(texels)
     return sample_texture_lod(tex_pixels, tex_table, entry, tu, tv, lod)
