@@ -618,12 +618,15 @@ def build_rig(
     key = next(b for b in spec.boxes if b.role == "key")
     unit = {}
     placed = {}
+
+    def place(b, azimuth_deg):
+        # The box's corners at this azimuth, and the illuminance at the centre per unit radiance.
+        d = rot @ _direction(azimuth_deg, b.elevation_deg)
+        corners = _box_corners(centre + b.distance * R * d, -d, b.width * R, b.height * R)
+        return corners, polygon_irradiance(corners, 1.0, centre, d)
+
     for b in spec.boxes:
-        d = rot @ _direction(b.azimuth_deg, b.elevation_deg)
-        c = centre + b.distance * R * d
-        corners = _box_corners(c, -d, b.width * R, b.height * R)
-        placed[b.name] = corners
-        unit[b.name] = polygon_irradiance(corners, 1.0, centre, d)
+        placed[b.name], unit[b.name] = place(b, b.azimuth_deg)
     eye = None if camera is None else np.asarray(camera.world_from_camera, np.float64)[:3, 3]
     blocked = set()
     if eye is not None:
@@ -639,11 +642,9 @@ def build_rig(
             # the view is clear (a high camera looks straight through a high key's back).
             swing = -1.0 if b.azimuth_deg <= 0.0 else 1.0
             for step_deg in range(5, 181, 5):
-                d = rot @ _direction(b.azimuth_deg + swing * step_deg, b.elevation_deg)
-                corners = _box_corners(centre + b.distance * R * d, -d, b.width * R, b.height * R)
+                corners, irradiance = place(b, b.azimuth_deg + swing * step_deg)
                 if not _quad_blocks(corners, eye, targets):
-                    placed[b.name] = corners
-                    unit[b.name] = polygon_irradiance(corners, 1.0, centre, d)
+                    placed[b.name], unit[b.name] = corners, irradiance
                     break
     for b in spec.boxes:
         if b.name in blocked:
